@@ -18,9 +18,9 @@ from numpy.typing import ArrayLike, NDArray
 
 from ._validation import as_finite_array, as_scalar
 from .constants import millikelvin
-from .energetic import _component, _touches_wall, energetic_acceptance, escape_level
+from .energetic import KNOWN_ESCAPE_SLACK, _component, _touches_wall, energetic_acceptance, escape_level
 from .separatrix import Separatrix, separatrix
-from .traps import Trap
+from .traps import Trap, _count
 
 __all__ = [
     "AcceptanceCurve",
@@ -33,17 +33,14 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-#: A 3-D grid escape energy within this fraction of the depth below the 1-D barriers is
-#: taken as grid error, not as a lower exit (the grid samples a saddle only to O(h^2)).
-_GRID_SLACK = 0.03
 #: Points per axis of the coarse grid that decides whether a lower 3-D exit exists.
-_CHECK_GRID = 41
+_CHECK_GRID = 33
 
 
 def longitudinal_acceptance(trap: Trap, deceleration: float = 0.0, samples: int = 2001) -> Separatrix:
-    """Separatrix of ``U_eff`` on the axis, the well taken near the field zero."""
-    z, potential = trap.axis_cut(deceleration, samples)
-    return separatrix(z, potential, trap.mass, near=_centre(trap)[2])
+    """Separatrix of ``U_eff`` on the trap's axis, the well taken near the box's middle."""
+    a = as_scalar(deceleration, "deceleration", "m/s^2")
+    return _Sampler(trap, samples).longitudinal(a)
 
 
 def transverse_acceptance(
@@ -54,19 +51,20 @@ def transverse_acceptance(
     z: float | None = None,
     max_energy: float | None = None,
 ) -> Separatrix:
-    """Separatrix of ``U_eff`` along x through ``(0, 0, z)``.
+    """Separatrix of ``U_eff`` along x through ``(x_mid, y_mid, z)``.
 
-    ``z`` defaults to the bottom of the tilted axis well; ``max_energy`` [J] caps the orbit
-    energy (:func:`trap_acceptance` passes the 3-D escape energy). Unbound when the axis
-    has no well.
+    ``z`` [m] defaults to the bottom of the tilted axis well; ``max_energy`` [J] caps the
+    orbit energy (:func:`trap_acceptance` passes the 3-D escape energy). Unbound when the
+    axis has no well.
     """
+    a = as_scalar(deceleration, "deceleration", "m/s^2")
+    sampler = _Sampler(trap, samples)
     if z is None:
-        axis = longitudinal_acceptance(trap, deceleration, samples)
+        axis = sampler.longitudinal(a)
         if not axis.bound:
             return axis
         z = axis.z_bottom
-    x, potential = trap.radial_cut(z, deceleration, samples)
-    return separatrix(x, potential, trap.mass, near=_centre(trap)[0], max_energy=max_energy)
+    return sampler.transverse(as_scalar(z, "z", "m"), a, max_energy)
 
 
 @dataclass(frozen=True, eq=False)
@@ -114,7 +112,7 @@ def trap_acceptance(
     samples: int = 2001,
     include_6d: bool = True,
     rtol: float = 1e-2,
-    _check: _EscapeCheck | None = None,
+    _sampler: _Sampler | None = None,
 ) -> TrapAcceptance:
     """Longitudinal, transverse and (optionally) 6-D acceptance at one deceleration.
 
@@ -123,23 +121,22 @@ def trap_acceptance(
     below the 1-D barriers (else the lower of the axis and radial barriers is used).
     """
     a = as_scalar(deceleration, "deceleration", "m/s^2")
-    axis = longitudinal_acceptance(trap, a, samples)
+    sampler = _sampler if _sampler is not None else _Sampler(trap, samples)
+    axis = sampler.longitudinal(a)
     if not axis.bound:
         return TrapAcceptance(a, axis, axis, float("nan"), 0.0 if include_6d else float("nan"))
-    radial = transverse_acceptance(trap, a, samples, z=axis.z_bottom)
+    radial = sampler.transverse(axis.z_bottom, a)
     cap = min(axis.escape_energy, radial.escape_energy) if radial.bound else axis.escape_energy
     volume = float("nan")
     if include_6d:
         six = energetic_acceptance(
             lambda x, y, z: trap.effective_potential(x, y, z, a), trap.mass, trap.bounds,
-            rtol=rtol, near=(*_centre(trap)[:2], axis.z_bottom),
+            rtol=rtol, near=(sampler.centre[0], sampler.centre[1], axis.z_bottom), known_escape=cap,
         )
-        volume = six.volume  # self-consistent on its own converged grid
-        escape = _settle(cap, six.escape_energy, six.bottom_energy)
+        volume, escape = six.volume, six.escape_energy
     else:
-        escape = (_check or _EscapeCheck(trap)).escape(a, axis, cap)
-    radial = transverse_acceptance(trap, a, samples, z=axis.z_bottom, max_energy=escape)
-    return TrapAcceptance(a, axis, radial, escape, volume)
+        escape = sampler.escape(a, axis, cap)
+    return TrapAcceptance(a, axis, sampler.transverse(axis.z_bottom, a, escape), escape, volume)
 
 
 @dataclass(frozen=True, eq=False)
@@ -179,9 +176,10 @@ def acceptance_curve(
 ) -> AcceptanceCurve:
     """Acceptances of ``trap`` at each of ``decelerations`` [m/s^2] (1-D array)."""
     values = as_finite_array(decelerations, "decelerations", "m/s^2", ndim=1)
-    check = None if include_6d else _EscapeCheck(trap)
+    sampler = _Sampler(trap, samples)
+    sampler.prefetch_radial([sampler.longitudinal(a).z_bottom for a in values])
     results = [
-        trap_acceptance(trap, a, samples=samples, include_6d=include_6d, rtol=rtol, _check=check) for a in values
+        trap_acceptance(trap, a, samples=samples, include_6d=include_6d, rtol=rtol, _sampler=sampler) for a in values
     ]
     return AcceptanceCurve(
         decelerations=values,
@@ -194,36 +192,52 @@ def acceptance_curve(
     )
 
 
-def _centre(trap: Trap) -> tuple[float, float, float]:
-    """Where the well is sought: the middle of the trap region (see :class:`Trap`)."""
-    (x0, x1), (y0, y1), (z0, z1) = trap.bounds
-    return 0.5 * (x0 + x1), 0.5 * (y0 + y1), 0.5 * (z0 + z1)
+class _Sampler:
+    """The untilted potential of one trap sampled once and reused for every deceleration
+    (the tilt only adds ``-m a z``): the axis, radial cuts by height, a coarse 3-D grid."""
 
-
-def _settle(cap: float, grid_escape: float, bottom: float) -> float:
-    """Accept the 1-D cap unless the grid finds an exit clearly below it."""
-    if grid_escape >= cap - _GRID_SLACK * (cap - bottom):
-        return cap
-    return grid_escape
-
-
-class _EscapeCheck:
-    """Coarse 3-D grid of the untilted potential, to ask cheaply for each deceleration
-    whether some exit lies clearly below the 1-D barriers (one labelling when none does)."""
-
-    def __init__(self, trap: Trap) -> None:
-        self.axes = [np.linspace(low, high, _CHECK_GRID) for low, high in trap.bounds]
-        x, y, z = np.meshgrid(*self.axes, indexing="ij", sparse=True)
-        self.values = trap.potential(x, y, z)
-        self.z = np.broadcast_to(z, self.values.shape)
-        self.centre = _centre(trap)
+    def __init__(self, trap: Trap, samples: int) -> None:
+        (x0, x1), (y0, y1), (z0, z1) = trap.bounds
+        self.trap = trap
         self.mass = trap.mass
+        self.centre = (0.5 * (x0 + x1), 0.5 * (y0 + y1), 0.5 * (z0 + z1))
+        self.z = np.linspace(z0, z1, _count(samples))
+        self.x = np.linspace(x0, x1, self.z.size)
+        self.axis = trap.potential(self.centre[0], self.centre[1], self.z)
+        self.radial: dict[float, FloatArray] = {}
+        self.axis_wells: dict[float, Separatrix] = {}
+        self.grid: tuple[FloatArray, FloatArray, list[FloatArray]] | None = None
 
-    def escape(self, deceleration: float, axis: Separatrix, cap: float) -> float:
-        values = self.values - self.mass * deceleration * self.z
+    def longitudinal(self, a: float) -> Separatrix:
+        if a not in self.axis_wells:
+            self.axis_wells[a] = separatrix(self.z, self.axis - self.mass * a * self.z, self.mass, near=self.centre[2])
+        return self.axis_wells[a]
+
+    def prefetch_radial(self, heights: list[float]) -> None:
+        """Sample the radial cuts at all new ``heights`` [m] in one field evaluation."""
+        new = sorted({h for h in heights if np.isfinite(h) and h not in self.radial})
+        if new:
+            values = self.trap.potential(self.x[None, :], self.centre[1], np.array(new)[:, None])
+            self.radial.update(zip(new, values))
+
+    def transverse(self, z: float, a: float, max_energy: float | None = None) -> Separatrix:
+        self.prefetch_radial([z])
+        cut = self.radial[z] - self.mass * a * z
+        return separatrix(self.x, cut, self.mass, near=self.centre[0], max_energy=max_energy)
+
+    def escape(self, a: float, axis: Separatrix, cap: float) -> float:
+        """3-D escape energy [J]: ``cap`` unless a coarse grid shows an exit clearly
+        below it (one labelling when none does)."""
+        if self.grid is None:
+            axes = [np.linspace(low, high, _CHECK_GRID) for low, high in self.trap.bounds]
+            x, y, z = np.meshgrid(*axes, indexing="ij", sparse=True)
+            values = self.trap.potential(x, y, z)
+            self.grid = (values, np.broadcast_to(z, values.shape), axes)
+        values0, z_grid, axes = self.grid
+        values = values0 - self.mass * a * z_grid
         near = (self.centre[0], self.centre[1], axis.z_bottom)
-        start = tuple(int(np.argmin(np.abs(ax - c))) for ax, c in zip(self.axes, near))
+        start = tuple(int(np.argmin(np.abs(ax - c))) for ax, c in zip(axes, near))
         bottom = axis.escape_energy - axis.depth
-        if not _touches_wall(_component(values <= cap - _GRID_SLACK * (cap - bottom), start)):
+        if not _touches_wall(_component(values <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
             return cap
         return min(cap, escape_level(values, start))

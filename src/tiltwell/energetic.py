@@ -33,9 +33,16 @@ __all__ = ["EnergeticAcceptance", "acceptance_6d", "energetic_acceptance", "esca
 Potential3D = Callable[[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]], NDArray[np.float64]]
 Bounds = tuple[tuple[float, float], ...]
 
-#: Grid points per axis tried in turn (odd, so a symmetric box has nodes on its mid-planes);
-#: each step has about 3.3 times the points of the last.
-_GRID_SIZES = (25, 37, 55, 81, 121, 181)
+#: Grid points per axis tried in turn: odd, so a symmetric box has nodes on its mid-planes,
+#: and n - 1 = 2 p with p prime, so two grids share no other planes (a kink or saddle that
+#: one grid straddles is not straddled the same way by the next, and the comparison of
+#: successive volumes sees the error). Each step has about 3 times the points of the last.
+_GRID_SIZES = (27, 39, 59, 87, 123, 179)
+
+
+#: A grid escape level this fraction of the depth below a known escape energy is taken as
+#: the grid's under-sampling of that exit (the grid samples a saddle to O(h^2), a kink to O(h)).
+KNOWN_ESCAPE_SLACK = 0.05
 
 
 @dataclass(frozen=True)
@@ -94,11 +101,11 @@ def acceptance_6d(
         Energy [J] bounding the volume; by default the escape energy.
     rtol : float
         Requested relative accuracy, in [1e-4, 0.5]; the grid is refined until two
-        successive volumes differ by less than this (about 1.25x the error left, for a
-        second-order rule).
+        successive refinements each change the volume by less than this.
     near : (x, y, z), optional
         Start the well from the grid minimum reached by walking downhill from this point
-        [m]; by default the well is around the lowest interior grid point.
+        [m]; by default the well is around the lowest interior local minimum of the grid
+        (a tilted potential may fall lower at a wall; that is not a well).
 
     Examples
     --------
@@ -122,8 +129,17 @@ def energetic_acceptance(
     *,
     rtol: float = 1e-2,
     near: tuple[float, float, float] | None = None,
+    known_escape: float | None = None,
 ) -> EnergeticAcceptance:
-    """Like :func:`acceptance_6d`, returning the escape energy and grid facts too."""
+    """Like :func:`acceptance_6d`, returning the escape energy and grid facts too.
+
+    ``known_escape`` [J] is an escape energy known more precisely from elsewhere (a finely
+    sampled cut through the exit). When the grid's own escape level lies within
+    ``KNOWN_ESCAPE_SLACK`` of the depth below it, the grid is taken to have merely
+    under-sampled that exit: the region stays the grid's closed component and the
+    integrand uses ``known_escape``. Otherwise the grid has found a lower exit and its
+    level stands.
+    """
     if not callable(potential):
         raise TiltwellError(f"potential must be a callable potential(x, y, z) -> J; got {type(potential).__name__}")
     mass = as_scalar(mass, "mass", "kg", low=0.0, low_open=True)
@@ -131,19 +147,23 @@ def energetic_acceptance(
     if energy is not None:
         energy = as_scalar(energy, "energy", "J")
     rtol = as_scalar(rtol, "rtol", "1", low=1e-4, high=0.5)
+    if known_escape is not None:
+        known_escape = as_scalar(known_escape, "known_escape", "J")
     start = None
     if near is not None:
         start = tuple(as_scalar(c, f"near[{i}]", "m") for i, c in enumerate(near))
 
-    previous: EnergeticAcceptance | None = None
+    # Converged when two successive refinements each change the volume by less than rtol:
+    # one agreement alone can be luck (two grids that straddle the exit alike).
+    volumes: list[float] = []
     result: EnergeticAcceptance | None = None
     for n in _GRID_SIZES:
-        result = _on_grid(potential, mass, box, energy, n, start)
-        if previous is not None:
-            scale = max(abs(result.volume), abs(previous.volume))
-            if scale == 0.0 or abs(result.volume - previous.volume) <= rtol * scale:
-                return _replace_converged(result, True)
-        previous = result
+        result = _on_grid(potential, mass, box, energy, n, start, known_escape)
+        volumes.append(result.volume)
+        if len(volumes) >= 3 and all(
+            abs(new - old) <= rtol * max(abs(new), abs(old)) for old, new in zip(volumes[-3:-1], volumes[-2:])
+        ):
+            return _replace_converged(result, True)
     assert result is not None
     return _replace_converged(result, False)
 
@@ -161,6 +181,7 @@ def _on_grid(
     energy: float | None,
     n: int,
     start: tuple[float, ...] | None,
+    known_escape: float | None,
 ) -> EnergeticAcceptance:
     axes = [np.linspace(low, high, n) for low, high in box]
     x, y, z = np.meshgrid(*axes, indexing="ij", sparse=True)
@@ -171,9 +192,13 @@ def _on_grid(
     bottom = _bottom_index(values, axes, start)
     bottom_energy = float(values[bottom])
     level = escape_level(values, bottom) if energy is None else energy
-    region = _component(values < level, bottom)
+    region_level = level
+    if energy is None and known_escape is not None:
+        if level >= known_escape - KNOWN_ESCAPE_SLACK * (known_escape - bottom_energy):
+            level = known_escape  # the integrand's energy; the region stays closed
+    region = _component(values < min(level, region_level), bottom)
     cell = math.prod(float(a[1] - a[0]) for a in axes)
-    kinetic = np.where(region, level - values, 0.0)
+    kinetic = np.where(region, np.maximum(level - values, 0.0), 0.0)
     volume = (4.0 * math.pi / 3.0) * float(np.sum((2.0 * kinetic / mass) ** 1.5)) * cell
     point = (float(axes[0][bottom[0]]), float(axes[1][bottom[1]]), float(axes[2][bottom[2]]))
     return EnergeticAcceptance(volume, float(level), bottom_energy, point, n, True)
@@ -214,11 +239,18 @@ def _touches_wall(region: NDArray[np.bool_]) -> bool:
 def _bottom_index(
     values: NDArray[np.float64], axes: list[NDArray[np.float64]], start: tuple[float, ...] | None
 ) -> tuple[int, int, int]:
-    """Lowest interior grid point, or the grid minimum reached downhill from ``start``."""
+    """The lowest interior grid point that is a minimum among its 26 neighbours (walls
+    included, so a slope falling to a wall is no well), or the grid minimum reached
+    downhill from ``start``. A grid with no such point yields its global minimum, on a
+    wall, whose region is empty."""
     if start is None:
-        interior = values[1:-1, 1:-1, 1:-1]
-        i, j, k = np.unravel_index(int(np.argmin(interior)), interior.shape)
-        return int(i) + 1, int(j) + 1, int(k) + 1
+        minima = values == ndimage.minimum_filter(values, size=3, mode="nearest")
+        minima[[0, -1], :, :] = minima[:, [0, -1], :] = minima[:, :, [0, -1]] = False
+        candidates = np.where(minima, values, np.inf)
+        if not np.isfinite(candidates).any():
+            candidates = values
+        i, j, k = np.unravel_index(int(np.argmin(candidates)), values.shape)
+        return int(i), int(j), int(k)
     index = [int(np.argmin(np.abs(axis - c))) for axis, c in zip(axes, start)]
     shape = values.shape
     while True:

@@ -15,6 +15,7 @@ positions in m, fields in T, gradients in T/m, currents in A.
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from typing import Protocol, runtime_checkable
 
@@ -256,8 +257,17 @@ def _nodes(extent: float, count: int) -> tuple[FloatArray, FloatArray]:
     """Gauss-Legendre offsets [m] over [-extent/2, extent/2] and weights summing to 1."""
     if extent == 0.0:
         return np.zeros(1), np.ones(1)
-    nodes, weights = np.polynomial.legendre.leggauss(count)
+    nodes, weights = _legendre(count)
     return 0.5 * extent * nodes, 0.5 * weights
+
+
+@functools.lru_cache(maxsize=32)
+def _legendre(count: int) -> tuple[FloatArray, FloatArray]:
+    """Gauss-Legendre nodes and weights on [-1, 1], computed once per count (read-only)."""
+    nodes, weights = np.polynomial.legendre.leggauss(count)
+    nodes.flags.writeable = False
+    weights.flags.writeable = False
+    return nodes, weights
 
 
 @dataclasses.dataclass(frozen=True)
@@ -278,6 +288,12 @@ class CoilSet:
             raise TiltwellError(f"coils must be a non-empty sequence of Coil; got {coils!r}")
         object.__setattr__(self, "coils", coils)
 
+    @functools.cached_property
+    def _filaments(self) -> tuple[FloatArray, FloatArray, FloatArray]:
+        """Radii [m], planes [m] and currents [A] of every filament, gathered once."""
+        radii, planes, currents = (np.concatenate(parts) for parts in zip(*(c.loops() for c in self.coils)))
+        return radii, planes, currents
+
     def field(self, points: ArrayLike) -> FloatArray:
         """Total field of all coils.
 
@@ -292,7 +308,7 @@ class CoilSet:
             Field [T]; NaN at points on a filament (see :func:`loop_field`).
         """
         positions = as_points(points)
-        radii, planes, currents = (np.concatenate(parts) for parts in zip(*(c.loops() for c in self.coils)))
+        radii, planes, currents = self._filaments
         x, y, z = positions.T
         rho = np.hypot(x, y)
         b_rho_over_rho = np.empty(len(positions))
