@@ -188,3 +188,18 @@ def test_trap_rejects_bad_input() -> None:
 def test_loop_field_is_exported() -> None:
     """The core interface names are importable from the package (DESIGN.md)."""
     assert loop_field(np.zeros((1, 3)), 1.0, 0.0, 1.0)[0, 2] == pytest.approx(constants.mu_0 / 2, rel=1e-12)
+
+
+def test_transverse_acceptance_function_is_capped_like_trap_acceptance() -> None:
+    """At a tilt the radial cut's own barrier (D) lies above the 3-D escape energy
+    D (1 - f/c): the function caps at the latter by default, and gives the raw cut when
+    asked for a height explicitly."""
+    from tiltwell import transverse_acceptance
+
+    trap = _quadrupole_trap()
+    a = 0.5 * C / PARTICLE.mass
+    capped = transverse_acceptance(trap, a)
+    raw = transverse_acceptance(trap, a, z=0.0)
+    assert capped.escape_energy == pytest.approx(0.5 * DEPTH, rel=1e-9)
+    assert raw.escape_energy == pytest.approx(DEPTH, rel=1e-9)
+    assert capped.area == pytest.approx(_v_area(0.5 * DEPTH, C / 2, 0.0, PARTICLE.mass), rel=1e-6)

@@ -51,19 +51,24 @@ def transverse_acceptance(
     z: float | None = None,
     max_energy: float | None = None,
 ) -> Separatrix:
-    """Separatrix of ``U_eff`` along x through ``(x_mid, y_mid, z)``.
+    """Transverse acceptance: the separatrix of ``U_eff`` along x through ``(x_mid, y_mid, z)``.
 
-    ``z`` [m] defaults to the bottom of the tilted axis well; ``max_energy`` [J] caps the
-    orbit energy (:func:`trap_acceptance` passes the 3-D escape energy). Unbound when the
-    axis has no well.
+    By default ``z`` is the bottom of the tilted axis well and the orbit energy is capped
+    at the 3-D escape energy, as in :func:`trap_acceptance` (whose ``transverse`` this
+    returns). Giving ``z`` [m] or ``max_energy`` [J] returns that raw radial cut instead,
+    capped only at ``max_energy``. Unbound when the axis has no well.
     """
     a = as_scalar(deceleration, "deceleration", "m/s^2")
+    if z is None and max_energy is None:
+        return trap_acceptance(trap, a, samples=samples, include_6d=False).transverse
     sampler = _Sampler(trap, samples)
     if z is None:
         axis = sampler.longitudinal(a)
         if not axis.bound:
             return axis
         z = axis.z_bottom
+    if max_energy is not None:
+        max_energy = as_scalar(max_energy, "max_energy", "J")
     return sampler.transverse(as_scalar(z, "z", "m"), a, max_energy)
 
 
