@@ -117,7 +117,6 @@ def trap_acceptance(
     samples: int = 2001,
     include_6d: bool = True,
     rtol: float = 1e-2,
-    _sampler: _Sampler | None = None,
 ) -> TrapAcceptance:
     """Longitudinal, transverse and (optionally) 6-D acceptance at one deceleration.
 
@@ -126,22 +125,38 @@ def trap_acceptance(
     below the 1-D barriers (else the lower of the axis and radial barriers is used).
     """
     a = as_scalar(deceleration, "deceleration", "m/s^2")
-    sampler = _sampler if _sampler is not None else _Sampler(trap, samples)
-    axis = sampler.longitudinal(a)
-    if not axis.bound:
-        return TrapAcceptance(a, axis, axis, float("nan"), 0.0 if include_6d else float("nan"))
-    radial = sampler.transverse(axis.z_bottom, a)
-    cap = min(axis.escape_energy, radial.escape_energy) if radial.bound else axis.escape_energy
-    volume = float("nan")
+    return _acceptances(_Sampler(trap, samples), np.array([a]), include_6d, rtol)[0]
+
+
+def _acceptances(sampler: _Sampler, values: FloatArray, include_6d: bool, rtol: float) -> list[TrapAcceptance]:
+    """The acceptances at each deceleration of ``values``, sharing the sampler's samples
+    and checking all 3-D exits in one batched labelling."""
+    trap = sampler.trap
+    axes = [sampler.longitudinal(a) for a in values]
+    sampler.prefetch_radial([axis.z_bottom for axis in axes if axis.bound])
+    # Capped at the axis barrier, the radial orbit's energy is min(axis, radial barrier):
+    # the 1-D bound on the 3-D escape energy, and usually the answer itself.
+    radials = [sampler.transverse(ax.z_bottom, a, ax.escape_energy) if ax.bound else ax for a, ax in zip(values, axes)]
+    caps = np.array([r.escape_energy if r.bound else ax.escape_energy for r, ax in zip(radials, axes)])
+    volumes = np.full(values.size, 0.0 if include_6d else np.nan)
+    escapes = caps.copy()
+    bound = np.array([ax.bound for ax in axes], dtype=bool)
     if include_6d:
-        six = energetic_acceptance(
-            lambda x, y, z: trap.effective_potential(x, y, z, a), trap.mass, trap.bounds,
-            rtol=rtol, near=(sampler.centre[0], sampler.centre[1], axis.z_bottom), known_escape=cap,
-        )
-        volume, escape = six.volume, six.escape_energy
-    else:
-        escape = sampler.escape(a, axis, cap)
-    return TrapAcceptance(a, axis, sampler.transverse(axis.z_bottom, a, escape), escape, volume)
+        for k in np.flatnonzero(bound):
+            six = energetic_acceptance(
+                trap.tilted(float(values[k])), trap.mass, trap.bounds,
+                rtol=rtol, near=(sampler.centre[0], sampler.centre[1], axes[k].z_bottom), known_escape=caps[k],
+            )
+            volumes[k], escapes[k] = six.volume, six.escape_energy
+    elif bound.any():
+        escapes[bound] = sampler.escapes(values[bound], [axes[k] for k in np.flatnonzero(bound)], caps[bound])
+    results = []
+    for i, (a, axis, radial) in enumerate(zip(values, axes, radials)):
+        if axis.bound and escapes[i] != caps[i]:
+            radial = sampler.transverse(axis.z_bottom, a, escapes[i])
+        escape = float(escapes[i]) if axis.bound else float("nan")
+        results.append(TrapAcceptance(float(a), axis, radial if axis.bound else axis, escape, float(volumes[i])))
+    return results
 
 
 @dataclass(frozen=True, eq=False)
@@ -181,11 +196,7 @@ def acceptance_curve(
 ) -> AcceptanceCurve:
     """Acceptances of ``trap`` at each of ``decelerations`` [m/s^2] (1-D array)."""
     values = as_finite_array(decelerations, "decelerations", "m/s^2", ndim=1)
-    sampler = _Sampler(trap, samples)
-    sampler.prefetch_radial([sampler.longitudinal(a).z_bottom for a in values])
-    results = [
-        trap_acceptance(trap, a, samples=samples, include_6d=include_6d, rtol=rtol, _sampler=sampler) for a in values
-    ]
+    results = _acceptances(_Sampler(trap, samples), values, include_6d, rtol)
     return AcceptanceCurve(
         decelerations=values,
         longitudinal=np.array([r.longitudinal.area for r in results]),
@@ -193,7 +204,7 @@ def acceptance_curve(
         volume=np.array([r.volume for r in results]),
         escape_energy=np.array([r.escape_energy for r in results]),
         depth=np.array([r.longitudinal.depth for r in results]),
-        critical_deceleration=trap.critical_deceleration(),
+        critical_deceleration=trap.critical_deceleration(samples),
     )
 
 
@@ -230,19 +241,21 @@ class _Sampler:
         cut = self.radial[z] - self.mass * a * z
         return separatrix(self.x, cut, self.mass, near=self.centre[0], max_energy=max_energy)
 
-    def escape(self, a: float, axis: Separatrix, cap: float) -> float:
-        """3-D escape energy [J]: ``cap`` unless a coarse grid shows an exit clearly
-        below it (one labelling when none does)."""
+    def escapes(self, decelerations: FloatArray, axes: list[Separatrix], caps: FloatArray) -> FloatArray:
+        """3-D escape energies [J]: each ``cap`` unless a coarse grid shows an exit
+        clearly below it (one labelling per deceleration when none does; a bisection
+        over the grid values only where one does)."""
         if self.grid is None:
-            axes = [np.linspace(low, high, _CHECK_GRID) for low, high in self.trap.bounds]
-            x, y, z = np.meshgrid(*axes, indexing="ij", sparse=True)
-            values = self.trap.potential(x, y, z)
-            self.grid = (values, np.broadcast_to(z, values.shape), axes)
-        values0, z_grid, axes = self.grid
-        values = values0 - self.mass * a * z_grid
-        near = (self.centre[0], self.centre[1], axis.z_bottom)
-        start = tuple(int(np.argmin(np.abs(ax - c))) for ax, c in zip(axes, near))
-        bottom = axis.escape_energy - axis.depth
-        if not _touches_wall(_component(values <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
-            return cap
-        return min(cap, escape_level(values, start))
+            axes3 = [np.linspace(low, high, _CHECK_GRID) for low, high in self.trap.bounds]
+            x, y, z = np.meshgrid(*axes3, indexing="ij", sparse=True)
+            self.grid = (self.trap.potential(x, y, z), z, axes3)
+        values0, z_grid, axes3 = self.grid
+        result = np.array(caps, dtype=np.float64)
+        for i, (a, axis, cap) in enumerate(zip(decelerations, axes, caps)):
+            tilted = values0 - self.mass * a * z_grid
+            near = (self.centre[0], self.centre[1], axis.z_bottom)
+            start = tuple(int(np.argmin(np.abs(ax - c))) for ax, c in zip(axes3, near))
+            bottom = axis.escape_energy - axis.depth
+            if _touches_wall(_component(tilted <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
+                result[i] = min(cap, escape_level(tilted, start))
+        return result

@@ -12,6 +12,7 @@ largest restoring force in front of the bottom, ``max dU/dz``, no longer exceeds
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -78,6 +79,12 @@ class Trap:
         """``U(r) - m a z`` [J]: the potential in the frame decelerating at ``a`` [m/s^2]."""
         a = as_scalar(deceleration, "deceleration", "m/s^2")
         return self.potential(x, y, z) - self.mass * a * np.asarray(z, dtype=np.float64)
+
+    def tilted(self, deceleration: float) -> Callable[[ArrayLike, ArrayLike, ArrayLike], FloatArray]:
+        """``U_eff`` at a fixed deceleration [m/s^2] as a function ``(x, y, z) -> J``, the
+        form :func:`tiltwell.acceptance_6d` takes."""
+        a = as_scalar(deceleration, "deceleration", "m/s^2")
+        return lambda x, y, z: self.effective_potential(x, y, z, a)
 
     def force(self, points: ArrayLike, deceleration: float = 0.0) -> FloatArray:
         """Force [N], shape (N, 3), on particles at ``points`` (N, 3) [m] in the trap frame:
