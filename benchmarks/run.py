@@ -1,0 +1,69 @@
+"""Run every benchmark and print one markdown table of median wall times.
+
+Usage, from the repository root: ``make bench`` or ``.venv/bin/python benchmarks/run.py``.
+Each time is the median of several calls (``time.perf_counter``) after one warm-up call;
+tiltwell and its reference are timed one after the other in the same process. A target
+that is not reached says "missed"; the numbers are never adjusted to pass.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+
+import bench_acceptance
+import bench_fields
+import bench_separatrix
+
+COLUMNS = ("case", "tiltwell [s]", "reference [s]", "ratio (tiltwell/reference)", "target", "met?")
+
+
+def field_rows() -> list[dict[str, object]]:
+    """bench_fields' rows, with the target set for them here (loop_field: not slower than magpylib)."""
+    rows = []
+    for entry in bench_fields.run():
+        case = str(entry["case"])
+        if case.startswith("loop_field"):
+            target, met = "ratio <= 1", float(entry["ratio"]) <= 1.0  # type: ignore[arg-type]
+        else:
+            target, met = "none set", None
+        rows.append({**entry, "case": f"{case} (ref: magpylib)", "target": target, "met": met})
+    return rows
+
+
+def cell(entry: dict[str, object]) -> list[str]:
+    met = entry["met"]
+    return [
+        str(entry["case"]),
+        f"{entry['tiltwell_s']:.3g}",
+        f"{entry['reference_s']:.3g}",
+        f"{entry['ratio']:.3g}",
+        str(entry["target"]),
+        "-" if met is None else ("yes" if met else "missed"),
+    ]
+
+
+def main() -> None:
+    started = time.perf_counter()
+    rows: list[dict[str, object]] = []
+    checks: list[str] = []
+    rows_1, checks_1 = bench_separatrix.run()
+    rows += rows_1
+    checks += checks_1
+    rows += field_rows()
+    rows_3, checks_3 = bench_acceptance.run()
+    rows += rows_3
+    checks += checks_3
+
+    print("| " + " | ".join(COLUMNS) + " |")
+    print("|" + "|".join("---" for _ in COLUMNS) + "|")
+    for entry in rows:
+        print("| " + " | ".join(cell(entry)) + " |")
+    print()
+    for line in checks:
+        print(f"- {line}")
+    print(f"\n(total {time.perf_counter() - started:.0f} s, python {sys.version.split()[0]})")
+
+
+if __name__ == "__main__":
+    main()
