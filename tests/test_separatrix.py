@@ -205,3 +205,16 @@ def test_bad_input_names_the_argument(z: list, u: list, mass: float, word: str) 
     with pytest.raises(TiltwellError, match=word) as caught:
         separatrix(z, u, mass)
     assert isinstance(caught.value, ValueError)
+
+
+def test_notebook_summary_shows_area_and_depth_in_display_units() -> None:
+    """_repr_html_ shows the area in mm·m/s (x 1e3) and the depth in mK (E / k_B x 1e3,
+    k_B from scipy.constants)."""
+    from scipy import constants
+
+    z = np.linspace(-1.0, 1.0, 2001)
+    result = separatrix(z, constants.k * 1e-3 * 0.5 * (1 - np.cos(math.pi * z)), 1e-26)
+    text = result._repr_html_()
+    assert f"{result.area * 1e3:.4g} mm·m/s" in text
+    assert "1 mK" in text
+    assert "no bound well" in separatrix(z, z, 1.0)._repr_html_()

@@ -10,13 +10,13 @@
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ._validation import as_finite_array, as_scalar
+from ._display import html_table
 from .constants import millikelvin
 from .energetic import KNOWN_ESCAPE_SLACK, _component, _touches_wall, energetic_acceptance, escape_level
 from .separatrix import Separatrix, separatrix
@@ -106,8 +106,7 @@ class TrapAcceptance:
             ("6-D acceptance", f"{self.volume * 1e9:.4g} (mm·m/s)³"),
             ("depth", f"{millikelvin(self.longitudinal.depth):.4g} mK (axis)"),
         ]
-        cells = "".join(f"<tr><td>{html.escape(k)}</td><td>{html.escape(v)}</td></tr>" for k, v in rows)
-        return f"<b>Trap acceptance</b><table>{cells}</table>"
+        return html_table("Trap acceptance", rows)
 
 
 def trap_acceptance(

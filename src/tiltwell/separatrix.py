@@ -17,12 +17,12 @@ interpolation, O(h^2) relative, about 1e-6 for a smooth well on 2,000 samples.
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from ._display import html_table
 from .constants import millikelvin
 from ._validation import TiltwellError, as_finite_array, as_increasing, as_scalar
 
@@ -120,8 +120,7 @@ class Separatrix:
             ("bottom", f"{self.z_bottom * 1e3:.4g} mm"),
             ("turning points", f"{self.z_back * 1e3:.4g} … {self.z_front * 1e3:.4g} mm"),
         ]
-        cells = "".join(f"<tr><td>{html.escape(k)}</td><td>{html.escape(v)}</td></tr>" for k, v in rows)
-        return f"<b>Separatrix</b><table>{cells}</table>"
+        return html_table("Separatrix", rows)
 
 
 def separatrix(
