@@ -54,8 +54,8 @@ def as_scalar(
         ) from None
     if isinstance(value, bool):
         raise TiltwellError(f"{name} [{unit}] must be a real number; got {value!r}")
-    left = "(" if low_open else "["
-    right = ")" if high_open else "]"
+    left = "(" if low_open or low == -math.inf else "["
+    right = ")" if high_open or high == math.inf else "]"
     allowed = f"{left}{low:g}, {high:g}{right}"
     inside = (
         math.isfinite(number)
