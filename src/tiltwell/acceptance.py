@@ -18,7 +18,7 @@ from numpy.typing import ArrayLike, NDArray
 from ._validation import as_finite_array, as_scalar
 from ._display import html_table
 from .constants import millikelvin
-from .energetic import KNOWN_ESCAPE_SLACK, _component, _touches_wall, energetic_acceptance, escape_level
+from .energetic import KNOWN_ESCAPE_SLACK, EnergeticAcceptance, _component, _touches_wall, energetic_acceptance, escape_level
 from .separatrix import Separatrix, separatrix
 from .traps import Trap, _count
 
@@ -86,6 +86,9 @@ class TrapAcceptance:
         3-D escape energy of the tilted well [J] (NaN when unbound).
     volume : float
         Energetic 6-D acceptance [(m·m/s)^3]; NaN when not computed.
+    energetic : EnergeticAcceptance or None
+        The 6-D grid result behind ``volume`` (its well region, for counting particles);
+        None when not computed or unbound.
     """
 
     deceleration: float
@@ -93,6 +96,7 @@ class TrapAcceptance:
     transverse: Separatrix
     escape_energy: float
     volume: float
+    energetic: EnergeticAcceptance | None = None
 
     @property
     def bound(self) -> bool:
@@ -139,6 +143,7 @@ def _acceptances(sampler: _Sampler, values: FloatArray, include_6d: bool, rtol: 
     caps = np.array([r.escape_energy if r.bound else ax.escape_energy for r, ax in zip(radials, axes)])
     volumes = np.full(values.size, 0.0 if include_6d else np.nan)
     escapes = caps.copy()
+    grids: list[EnergeticAcceptance | None] = [None] * values.size
     bound = np.array([ax.bound for ax in axes], dtype=bool)
     if include_6d:
         for k in np.flatnonzero(bound):
@@ -146,7 +151,7 @@ def _acceptances(sampler: _Sampler, values: FloatArray, include_6d: bool, rtol: 
                 trap.tilted(float(values[k])), trap.mass, trap.bounds,
                 rtol=rtol, near=(sampler.centre[0], sampler.centre[1], axes[k].z_bottom), known_escape=caps[k],
             )
-            volumes[k], escapes[k] = six.volume, six.escape_energy
+            volumes[k], escapes[k], grids[k] = six.volume, six.escape_energy, six
     elif bound.any():
         escapes[bound] = sampler.escapes(values[bound], [axes[k] for k in np.flatnonzero(bound)], caps[bound])
     results = []
@@ -154,7 +159,9 @@ def _acceptances(sampler: _Sampler, values: FloatArray, include_6d: bool, rtol: 
         if axis.bound and escapes[i] != caps[i]:
             radial = sampler.transverse(axis.z_bottom, a, escapes[i])
         escape = float(escapes[i]) if axis.bound else float("nan")
-        results.append(TrapAcceptance(float(a), axis, radial if axis.bound else axis, escape, float(volumes[i])))
+        results.append(
+            TrapAcceptance(float(a), axis, radial if axis.bound else axis, escape, float(volumes[i]), grids[i])
+        )
     return results
 
 

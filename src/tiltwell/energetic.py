@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -45,7 +45,7 @@ _GRID_SIZES = (27, 39, 59, 87, 123, 179)
 KNOWN_ESCAPE_SLACK = 0.05
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class EnergeticAcceptance:
     """Result of :func:`energetic_acceptance`.
 
@@ -63,6 +63,10 @@ class EnergeticAcceptance:
         Points per axis of the finest grid used.
     converged : bool
         Whether the last two grids agreed to the requested tolerance.
+    axes : tuple of ndarray
+        Grid coordinates [m] along x, y, z of the finest grid.
+    region : ndarray of bool, shape (n, n, n)
+        Grid nodes of the well below ``escape_energy`` (the connected component).
     """
 
     volume: float
@@ -71,6 +75,26 @@ class EnergeticAcceptance:
     bottom: tuple[float, float, float]
     grid_points: int
     converged: bool
+    axes: tuple[NDArray[np.float64], ...] = field(repr=False, default=())
+    region: NDArray[np.bool_] = field(repr=False, default_factory=lambda: np.zeros((0, 0, 0), dtype=bool))
+
+    def in_well(self, points: NDArray[np.float64]) -> NDArray[np.bool_]:
+        """Whether each of ``points`` (N, 3) [m] lies in the well's connected region.
+
+        A point counts when its nearest grid node is in the region grown by one node, so
+        points just inside the region's edge count; other wells stay out because they
+        are separated from this one by at least one node at or above the escape energy.
+        Points outside the grid's box are not in the well.
+        """
+        positions = np.asarray(points, dtype=np.float64)
+        grown = ndimage.binary_dilation(self.region)
+        inside = np.ones(len(positions), dtype=bool)
+        index = []
+        for axis, column in zip(self.axes, positions.T):
+            step = axis[1] - axis[0]
+            inside &= (column >= axis[0]) & (column <= axis[-1])
+            index.append(np.clip(np.rint((column - axis[0]) / step).astype(np.intp), 0, axis.size - 1))
+        return inside & grown[tuple(index)]
 
     @property
     def depth(self) -> float:
@@ -169,9 +193,7 @@ def energetic_acceptance(
 
 
 def _replace_converged(result: EnergeticAcceptance, converged: bool) -> EnergeticAcceptance:
-    return EnergeticAcceptance(
-        result.volume, result.escape_energy, result.bottom_energy, result.bottom, result.grid_points, converged
-    )
+    return replace(result, converged=converged)
 
 
 def _on_grid(
@@ -201,7 +223,7 @@ def _on_grid(
     kinetic = np.where(region, np.maximum(level - values, 0.0), 0.0)
     volume = (4.0 * math.pi / 3.0) * float(np.sum((2.0 * kinetic / mass) ** 1.5)) * cell
     point = (float(axes[0][bottom[0]]), float(axes[1][bottom[1]]), float(axes[2][bottom[2]]))
-    return EnergeticAcceptance(volume, float(level), bottom_energy, point, n, True)
+    return EnergeticAcceptance(volume, float(level), bottom_energy, point, n, True, tuple(axes), region)
 
 
 def escape_level(values: NDArray[np.float64], start: tuple[int, ...]) -> float:

@@ -1,4 +1,5 @@
-"""How much of a Gaussian beam lies inside an acceptance.
+"""How much of a beam lies inside an acceptance: a Gaussian in one plane, the product of
+three planes, and the energetic count of sampled particles in 6-D.
 
 For a bivariate normal in (z, v) the conditional distribution of v at fixed z is normal
 (mean ``mu_v + c_zv / c_zz (z - mu_z)``, variance ``c_vv - c_zv^2 / c_zz``), so the
@@ -12,15 +13,21 @@ evaluated by composite Gauss-Legendre quadrature to far better than the 1e-3 pro
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING
 
 import numpy as np
-from numpy.typing import ArrayLike
+from numpy.typing import ArrayLike, NDArray
 from scipy import special
 
-from ._validation import TiltwellError, as_finite_array
+from ._validation import TiltwellError, as_finite_array, as_scalar
 from .separatrix import Separatrix
 
-__all__ = ["gaussian_fraction"]
+if TYPE_CHECKING:
+    from .beam import Beam
+    from .energetic import EnergeticAcceptance
+    from .traps import Trap
+
+__all__ = ["energetic_fraction", "gaussian_fraction", "plane_product_fraction"]
 
 #: Uniform panels across the integration window, each with a Gauss-Legendre rule.
 _PANELS = 2000
@@ -97,3 +104,76 @@ def gaussian_fraction(separatrix: Separatrix, mean: ArrayLike, cov: ArrayLike) -
     density = np.exp(-0.5 * ((z - mean_z) / sigma_z) ** 2) / (sigma_z * math.sqrt(2.0 * math.pi))
     value = float(np.sum(half[:, None] * _WEIGHTS[None, :] * density * inside))
     return min(max(value, 0.0), 1.0)
+
+
+def plane_product_fraction(
+    longitudinal: Separatrix,
+    transverse: Separatrix,
+    beam: Beam,
+    mismatch: float = 0.0,
+) -> float:
+    """Captured fraction as the product of one longitudinal and two transverse overlaps.
+
+    Parameters
+    ----------
+    longitudinal, transverse : Separatrix
+        The axis and radial separatrices in the trap frame (the radial one stands for both
+        x and y, as for an axially symmetric trap).
+    beam : Beam
+        The beam at switch-on, centred on the trap centre.
+    mismatch : float
+        Trap velocity minus the beam's mean velocity [m/s]: in the trap frame the beam's
+        mean longitudinal velocity is ``-mismatch``.
+
+    Notes
+    -----
+    Treating the planes as independent ignores their coupling in the well (the tilt and
+    the finite depth mix them): it is the estimate an accelerator physicist makes first,
+    and it neither bounds nor is bounded by the energetic 6-D count.
+    """
+    mismatch = as_scalar(mismatch, "mismatch", "m/s")
+    along = gaussian_fraction(longitudinal, [0.0, -mismatch], beam.longitudinal.covariance)
+    across_x = gaussian_fraction(transverse, [0.0, 0.0], beam.horizontal.covariance)
+    across_y = gaussian_fraction(transverse, [0.0, 0.0], beam.vertical.covariance)
+    return along * across_x * across_y
+
+
+def energetic_fraction(
+    trap: Trap,
+    well: EnergeticAcceptance,
+    deceleration: float,
+    particles: NDArray[np.float64],
+) -> tuple[float, float]:
+    """Fraction of sampled particles whose energy in the tilted trap is below the escape
+    energy and that sit in the well's connected region, with its binomial standard error.
+
+    Parameters
+    ----------
+    trap : Trap
+    well : EnergeticAcceptance
+        The 6-D result at this deceleration (its escape energy and region).
+    deceleration : float
+        [m/s^2].
+    particles : ndarray, shape (N, 6)
+        (x, y, z, vx, vy, vz) in the trap frame [m, m/s].
+
+    Returns
+    -------
+    fraction, error : float
+        Kept fraction and sqrt(p (1 - p) / N).
+    """
+    points = np.asarray(particles, dtype=np.float64)
+    if points.ndim != 2 or points.shape[1] != 6 or points.shape[0] == 0:
+        raise TiltwellError(f"particles [m, m/s] must have shape (N, 6) with N >= 1; got {points.shape}")
+    a = as_scalar(deceleration, "deceleration", "m/s^2")
+    (x0, x1), (y0, y1), (z0, z1) = trap.bounds
+    position, velocity = points[:, :3], points[:, 3:]
+    in_box = np.all((position > (x0, y0, z0)) & (position < (x1, y1, z1)), axis=1)
+    energy = np.full(len(points), np.inf)
+    inside = position[in_box]
+    energy[in_box] = 0.5 * trap.mass * np.sum(velocity[in_box] ** 2, axis=1) + trap.effective_potential(
+        inside[:, 0], inside[:, 1], inside[:, 2], a
+    )
+    kept = (energy < well.escape_energy) & well.in_well(position)
+    p = float(kept.mean())
+    return p, math.sqrt(p * (1.0 - p) / len(points))
