@@ -62,3 +62,76 @@ def test_errors_are_one_line_without_traceback(argv: list[str], word: str) -> No
 def test_bohr_magneton_sanity() -> None:
     """The hydrogen moment in the catalogue is about one Bohr magneton (CODATA via scipy)."""
     assert species("H").moment == pytest.approx(constants.physical_constants["Bohr magneton"][0], rel=2e-3)
+
+
+def _scenario_file(tmp_path, **simulation):  # type: ignore[no-untyped-def]
+    from tiltwell import scenario as sc
+    from tiltwell.cli import DEMO_SCENARIO
+
+    scenario = sc.load(DEMO_SCENARIO).replace("simulation", **simulation)
+    return sc.save(scenario, tmp_path / "plan.toml")
+
+
+def test_run_json_matches_the_library(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:  # type: ignore[no-untyped-def]
+    """The command line prints what tiltwell.summarise computes (one JSON object)."""
+    from tiltwell import scenario as sc
+    from tiltwell import summarise
+
+    path = _scenario_file(tmp_path, particles=1000, track=False)
+    assert main(["run", str(path), "--json"]) == 0
+    printed = json.loads(capsys.readouterr().out)
+    direct = json.loads(json.dumps(summarise(sc.load(path))))
+    assert printed == direct
+    assert printed["captured_fraction_mc"] is None  # trajectories switched off
+
+
+def test_run_text_summary(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:  # type: ignore[no-untyped-def]
+    path = _scenario_file(tmp_path, particles=500)
+    assert main(["run", str(path)]) == 0
+    out = capsys.readouterr().out
+    for phrase in ("longitudinal acceptance", "trajectories", "CAUTION", "mK"):
+        assert phrase in out
+
+
+def test_demo_writes_its_scenario_and_summary(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:  # type: ignore[no-untyped-def]
+    """Full demo (1e5 trajectories): the written scenario loads back equal to the shipped one."""
+    from tiltwell import scenario as sc
+    from tiltwell.cli import DEMO_SCENARIO
+
+    assert main(["demo", "--out", str(tmp_path)]) == 0
+    assert sc.load(tmp_path / "demo.toml") == sc.load(DEMO_SCENARIO)
+    summary = json.loads((tmp_path / "demo-summary.json").read_text())
+    assert summary["mc_particles"] == 100_000
+    assert 0.0 < summary["captured_fraction_mc"] < 1.0
+
+
+def test_sweep_writes_csv(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    path = _scenario_file(tmp_path, particles=200, track=False)
+    out = tmp_path / "trade.csv"
+    assert main(["sweep", str(path), "--start", "2e4", "--stop", "6e4", "--points", "3", "--out", str(out),
+                 "--quiet"]) == 0
+    lines = out.read_text().splitlines()
+    assert len(lines) == 4 and lines[0].startswith("deceleration [m/s^2]")
+
+
+@pytest.mark.parametrize(
+    ("edit", "word"),
+    [("gradient = 250.0", "gradeint = 250.0"), ("temperature = 300.0", "temperature = -4.0")],
+    ids=["unknown-key", "negative-temperature"],
+)
+def test_run_scenario_errors_are_one_line(tmp_path, edit: str, word: str) -> None:  # type: ignore[no-untyped-def]
+    from tiltwell.cli import DEMO_SCENARIO
+
+    path = tmp_path / "bad.toml"
+    path.write_text(DEMO_SCENARIO.read_text().replace(edit, word))
+    completed = subprocess.run([sys.executable, "-m", "tiltwell.cli", "run", str(path)],
+                               capture_output=True, text=True, check=False)
+    assert completed.returncode == 2
+    assert "Traceback" not in completed.stderr
+    assert len(completed.stderr.strip().splitlines()) == 1
+    assert word.split(" = ")[0] in completed.stderr
+
+
+def test_keys_lists_the_scenario_keys(capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["keys"]) == 0
+    assert "flight_distance [m]" in capsys.readouterr().out

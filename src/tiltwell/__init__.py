@@ -14,41 +14,77 @@ from .acceptance import (
     transverse_acceptance,
 )
 from .constants import from_millikelvin, millikelvin
+from .beam import Beam, PhasePlane
+from .capture import CaptureEstimates, capture_estimates
 from .energetic import EnergeticAcceptance, acceptance_6d, energetic_acceptance
 from .fields import CoilSet, Coil, IdealQuadrupole, anti_helmholtz, loop_field
-from .overlap import gaussian_fraction
+from .hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
+from .overlap import energetic_fraction, gaussian_fraction, plane_product_fraction
+from .report import build, summarise
+from .scenario import Scenario
+from .schedule import CoilTiming, Schedule, arrival_times, coil_timing, constant_deceleration
 from .separatrix import Separatrix, separatrix
+from .source import Aperture, Gas, Source, gas, mixture, terminal_velocity
 from .species import BreitRabi, LinearZeeman, Species, TabulatedZeeman, catalogue, species
+from .sweep import sweep
+from .tracking import FieldMap, TrackingResult, track
 from .traps import Trap
 
 __version__ = "0.1.0"
 
 __all__ = [
     "AcceptanceCurve",
+    "Aperture",
+    "Beam",
     "BreitRabi",
+    "CaptureEstimates",
     "Coil",
     "CoilSet",
+    "CoilTiming",
+    "ELECTRICAL_CAUTION",
     "EnergeticAcceptance",
+    "FieldMap",
+    "Gas",
+    "HardwareEstimate",
     "IdealQuadrupole",
     "LinearZeeman",
+    "PhasePlane",
+    "Scenario",
+    "Schedule",
     "Separatrix",
+    "Source",
     "Species",
     "TabulatedZeeman",
     "TiltwellError",
+    "TrackingResult",
     "Trap",
     "TrapAcceptance",
     "acceptance_6d",
     "acceptance_curve",
     "anti_helmholtz",
+    "arrival_times",
+    "build",
+    "capture_estimates",
     "catalogue",
+    "coil_timing",
+    "constant_deceleration",
     "energetic_acceptance",
+    "energetic_fraction",
     "from_millikelvin",
+    "gas",
     "gaussian_fraction",
+    "hardware_estimate",
     "longitudinal_acceptance",
     "loop_field",
     "millikelvin",
+    "mixture",
+    "plane_product_fraction",
     "separatrix",
     "species",
-    "trap_acceptance",
+    "summarise",
+    "sweep",
+    "terminal_velocity",
+    "track",
     "transverse_acceptance",
+    "trap_acceptance",
 ]

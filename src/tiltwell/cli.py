@@ -1,5 +1,8 @@
 """The ``tiltwell`` command line.
 
+``tiltwell run FILE [--json]`` computes a scenario; ``tiltwell sweep FILE ...`` writes a
+trade-off table as CSV; ``tiltwell demo --out DIR`` writes the invented demo scenario and
+runs it; ``tiltwell keys`` lists every scenario key with unit and range;
 ``tiltwell species [NAME]`` lists the catalogue or shows one species;
 ``tiltwell quadrupole SPECIES --gradient G --max-field B --deceleration A [--json]``
 gives the acceptance of an ideal quadrupole trap of finite depth, a first estimate.
@@ -13,13 +16,25 @@ import json
 import os
 import sys
 from collections.abc import Sequence
+from concurrent.futures import ProcessPoolExecutor
+from pathlib import Path
+
+import numpy as np
+
+from . import scenario as scenario_module
+from ._files import atomic_write_text
 
 from ._validation import TiltwellError, as_scalar
 from .acceptance import trap_acceptance
 from .constants import ATOMIC_MASS, BOHR_MAGNETON, millikelvin
 from .fields import IdealQuadrupole
+from .report import summarise
 from .species import catalogue, species
+from .sweep import sweep, sweep_csv
 from .traps import Trap
+
+#: The invented demo scenario shipped with the package.
+DEMO_SCENARIO = Path(__file__).with_name("data") / "demo.toml"
 
 __all__ = ["main", "quadrupole_summary"]
 
@@ -97,9 +112,86 @@ def _print_quadrupole(summary: dict[str, object]) -> None:
     print(f"  6-D acceptance          {number('acceptance_6d') * 1e9:.4g} (mm*m/s)^3")
 
 
+def _print_run(summary: dict[str, object]) -> None:
+    def number(key: str) -> float:
+        value = summary.get(key)
+        return float(value) if isinstance(value, (int, float)) else float("nan")
+
+    print(f"{summary['species']}: {number('initial_velocity'):.1f} -> {number('final_velocity'):.1f} m/s at "
+          f"{number('deceleration'):.4g} m/s^2 over {number('length'):.3g} m in {number('duration') * 1e3:.3g} ms "
+          f"(critical {number('critical_deceleration'):.4g} m/s^2)")
+    print(f"  depth (axis)             {millikelvin(number('depth')):.4g} mK")
+    print(f"  longitudinal acceptance  {number('longitudinal_acceptance') * 1e3:.4g} mm*m/s")
+    print(f"  transverse acceptance    {number('transverse_acceptance') * 1e3:.4g} mm*m/s")
+    print(f"  6-D acceptance           {number('acceptance_6d') * 1e9:.4g} (mm*m/s)^3")
+    print("  captured fraction")
+    print(f"    phase-space overlap    {number('captured_fraction_overlap'):.4g}")
+    print(f"    energetic 6-D          {number('captured_fraction_energy'):.4g} "
+          f"+- {number('captured_fraction_energy_error'):.2g}")
+    print(f"    trajectories           {number('captured_fraction_mc'):.4g} "
+          f"+- {number('captured_fraction_mc_error'):.2g}  ({int(number('mc_particles'))} particles)")
+    if "coils" in summary:
+        print(f"  coils                    {int(number('coils'))}")
+        print(f"  {summary['caution']}")
+
+
+def _run(path: str, as_json: bool, progress: bool) -> None:
+    summary = summarise(scenario_module.load(path), progress=progress)
+    if as_json:
+        print(json.dumps(summary))
+    else:
+        _print_run(summary)
+
+
+def _sweep(arguments: argparse.Namespace) -> None:
+    scenario = scenario_module.load(arguments.file)
+    values = np.linspace(arguments.start, arguments.stop, arguments.points)
+    executor = ProcessPoolExecutor(arguments.workers) if arguments.workers > 1 else None
+    try:
+        keyword = "lengths" if arguments.lengths else "decelerations"
+        rows = sweep(scenario, **{keyword: values}, executor=executor, progress=not arguments.quiet)
+    finally:
+        if executor is not None:
+            executor.shutdown()
+    text = sweep_csv(rows, arguments.out)
+    if arguments.out is None:
+        print(text, end="")
+
+
+def _demo(out: str, as_json: bool) -> None:
+    folder = Path(out)
+    folder.mkdir(parents=True, exist_ok=True)
+    demo = scenario_module.loads(DEMO_SCENARIO.read_text(encoding="utf-8"))
+    path = scenario_module.save(demo, folder / "demo.toml")
+    summary = summarise(demo)
+    atomic_write_text(folder / "demo-summary.json", json.dumps(summary, indent=2) + "\n")
+    if as_json:
+        print(json.dumps(summary))
+    else:
+        print(f"wrote {path} and {folder / 'demo-summary.json'}")
+        _print_run(summary)
+
+
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="tiltwell", description=__doc__.splitlines()[0])
     commands = parser.add_subparsers(dest="command", required=True)
+    run = commands.add_parser("run", help="compute a scenario file")
+    run.add_argument("file")
+    run.add_argument("--json", action="store_true", help="print one JSON object (SI units)")
+    run.add_argument("--progress", action="store_true", help="show a progress bar for the trajectories")
+    sweeping = commands.add_parser("sweep", help="trade-off table over decelerations (or lengths), as CSV")
+    sweeping.add_argument("file")
+    sweeping.add_argument("--start", type=float, required=True, help="first deceleration [m/s^2] (or length [m])")
+    sweeping.add_argument("--stop", type=float, required=True, help="last deceleration [m/s^2] (or length [m])")
+    sweeping.add_argument("--points", type=int, default=11, help="number of points, default 11")
+    sweeping.add_argument("--lengths", action="store_true", help="sweep the length [m] instead")
+    sweeping.add_argument("--out", help="CSV file to write (default: standard output)")
+    sweeping.add_argument("--workers", type=int, default=1, help="processes to use, default 1")
+    sweeping.add_argument("--quiet", action="store_true", help="no progress bar")
+    demo = commands.add_parser("demo", help="write the invented demo scenario and run it")
+    demo.add_argument("--out", required=True, help="folder for the demo files")
+    demo.add_argument("--json", action="store_true", help="print the summary as one JSON object")
+    commands.add_parser("keys", help="every scenario key with unit, range and meaning")
     listing = commands.add_parser("species", help="list the species catalogue or show one species")
     listing.add_argument("name", nargs="?")
     quad = commands.add_parser("quadrupole", help="acceptance of an ideal quadrupole of finite depth")
@@ -115,7 +207,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``tiltwell`` console script; returns the exit status."""
     arguments = _parser().parse_args(argv)
     try:
-        if arguments.command == "species":
+        if arguments.command == "run":
+            _run(arguments.file, arguments.json, arguments.progress)
+        elif arguments.command == "sweep":
+            _sweep(arguments)
+        elif arguments.command == "demo":
+            _demo(arguments.out, arguments.json)
+        elif arguments.command == "keys":
+            print(scenario_module.describe())
+        elif arguments.command == "species":
             _print_species(arguments.name)
         else:
             summary = quadrupole_summary(
@@ -127,6 +227,9 @@ def main(argv: Sequence[str] | None = None) -> int:
                 _print_quadrupole(summary)
     except TiltwellError as error:
         print(f"tiltwell: error: {error}", file=sys.stderr)
+        return 2
+    except OSError as error:
+        print(f"tiltwell: error: {error.filename or ''}: {error.strerror}", file=sys.stderr)
         return 2
     except BrokenPipeError:  # output piped into a reader that stopped early (e.g. head)
         sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - silence the flush at exit

@@ -1,0 +1,106 @@
+"""A whole scenario: summary numbers against closed forms; sweeps serial and on Dask."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy import constants
+
+from tiltwell import scenario as sc
+from tiltwell import species, summarise, sweep
+from tiltwell.sweep import COLUMNS, sweep_csv
+
+DEMO = Path(sc.__file__).with_name("data") / "demo.toml"
+
+
+def _small(particles: int = 2000, track: bool = True) -> sc.Scenario:
+    return sc.load(DEMO).replace("simulation", particles=particles, track=track)
+
+
+@pytest.fixture(scope="module")
+def summary() -> dict:  # type: ignore[type-arg]
+    return summarise(_small())
+
+
+def test_summary_kinematics_against_closed_forms(summary: dict) -> None:  # type: ignore[type-arg]
+    """v0 = sqrt(5 k T / m_Kr) (monatomic terminal velocity; Kr 83.798 u, standard atomic
+    weight from memory); a = (v0^2 - vf^2) / (2 L); t = (v0 - vf) / a (kinematics)."""
+    v0 = math.sqrt(5 * constants.k * 300.0 / (83.798 * constants.atomic_mass))
+    assert summary["initial_velocity"] == pytest.approx(v0, rel=1e-9)
+    assert summary["deceleration"] == pytest.approx((v0**2 - 20.0**2) / (2 * 1.5), rel=1e-9)
+    assert summary["duration"] == pytest.approx((v0 - 20.0) / summary["deceleration"], rel=1e-9)
+    assert summary["length"] == pytest.approx(1.5, rel=1e-12)
+
+
+def test_summary_trap_numbers_against_closed_forms(summary: dict) -> None:  # type: ignore[type-arg]
+    """Ideal quadrupole: critical deceleration mu B'/m; axis depth at a tilt f = m a is
+    D (1 - f/c) with D = mu B_max, c = mu B' (tests/test_acceptance.py derives it)."""
+    oh = species("OH")
+    c, depth = oh.moment * 250.0, oh.moment * 0.8
+    assert summary["critical_deceleration"] == pytest.approx(c / oh.mass, rel=1e-9)
+    expected = depth * (1 - oh.mass * summary["deceleration"] / c)
+    assert summary["escape_energy"] == pytest.approx(expected, rel=1e-6)
+    assert summary["depth"] == pytest.approx(expected, rel=1e-6)
+
+
+def test_summary_has_every_key_with_its_unit(summary: dict) -> None:  # type: ignore[type-arg]
+    for key in ("longitudinal_acceptance", "transverse_acceptance", "acceptance_6d", "escape_energy",
+                "captured_fraction_overlap", "captured_fraction_energy", "captured_fraction_mc", "mc_particles",
+                "deceleration", "initial_velocity", "length", "duration", "final_velocity"):
+        assert key in summary and key in summary["units"]
+    assert summary["mc_particles"] == 2000
+    assert summary["coils"] == math.floor((1.5 - 0.006) / 0.012) + 1  # first coil at pitch / 2
+    assert "electrical-safety" in summary["caution"]
+    # the three estimates agree to within their noise and model differences on this case
+    fractions = [summary[k] for k in ("captured_fraction_overlap", "captured_fraction_energy", "captured_fraction_mc")]
+    assert max(fractions) - min(fractions) < 0.05
+
+
+@pytest.fixture(scope="module")
+def serial_rows() -> list[dict]:  # type: ignore[type-arg]
+    return sweep(_small(500, track=False), np.array([2e4, 4e4, 6e4, 8e4]))
+
+
+def test_sweep_trades_length_against_acceptance(serial_rows: list[dict]) -> None:  # type: ignore[type-arg]
+    """Harder deceleration: shorter machine (L = (v0^2 - vf^2) / 2a exactly), fewer coils,
+    smaller acceptance and captured fraction."""
+    lengths = np.array([r["length"] for r in serial_rows])
+    assert lengths * np.array([2e4, 4e4, 6e4, 8e4]) == pytest.approx(np.full(4, lengths[0] * 2e4), rel=1e-12)
+    for key in ("coils", "longitudinal_acceptance", "transverse_acceptance", "acceptance_6d",
+                "captured_fraction_overlap", "captured_fraction_energy"):
+        values = [r[key] for r in serial_rows]
+        assert all(b < a for a, b in zip(values, values[1:])), key
+
+
+def test_sweep_on_a_dask_cluster_equals_the_serial_sweep(serial_rows: list[dict]) -> None:  # type: ignore[type-arg]
+    """The same points through a Dask LocalCluster's concurrent.futures executor."""
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
+        with distributed.Client(cluster) as client:
+            rows = sweep(_small(500, track=False), np.array([2e4, 4e4, 6e4, 8e4]), executor=client.get_executor())
+    assert rows == serial_rows
+
+
+def test_sweep_over_lengths_and_csv(tmp_path: Path) -> None:
+    rows = sweep(_small(300, track=False), lengths=[1.0, 2.0])
+    assert [r["length"] for r in rows] == pytest.approx([1.0, 2.0], rel=1e-12)
+    path = tmp_path / "sweep.csv"
+    text = sweep_csv(rows, path)
+    lines = path.read_text().splitlines()
+    assert lines[0].split(",")[0] == "deceleration [m/s^2]" and len(lines) == 3
+    assert text == path.read_text()
+    assert len(lines[1].split(",")) == len(COLUMNS)
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "word"),
+    [({}, "exactly one"), ({"decelerations": [1e4], "lengths": [1.0]}, "exactly one"),
+     ({"decelerations": [-1.0]}, "positive"), ({"decelerations": [[1.0]]}, "decelerations")],
+    ids=["neither", "both", "negative", "2-d"],
+)
+def test_sweep_bad_input(kwargs: dict, word: str) -> None:  # type: ignore[type-arg]
+    with pytest.raises(ValueError, match=word):
+        sweep(_small(10, track=False), **kwargs)
