@@ -13,7 +13,9 @@ import time
 
 import bench_acceptance
 import bench_fields
+import bench_report
 import bench_separatrix
+import bench_tracking
 
 COLUMNS = ("case", "tiltwell [s]", "reference [s]", "ratio (tiltwell/reference)", "target", "met?")
 
@@ -51,9 +53,10 @@ def main() -> None:
     rows += rows_1
     checks += checks_1
     rows += field_rows()
-    rows_3, checks_3 = bench_acceptance.run()
-    rows += rows_3
-    checks += checks_3
+    for module in (bench_acceptance, bench_tracking, bench_report):
+        more_rows, more_checks = module.run()
+        rows += more_rows
+        checks += more_checks
 
     print("| " + " | ".join(COLUMNS) + " |")
     print("|" + "|".join("---" for _ in COLUMNS) + "|")
