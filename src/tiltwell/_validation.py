@@ -6,7 +6,9 @@ float64 array), so a public function validates and converts in one line per argu
 
 from __future__ import annotations
 
+import difflib
 import math
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
@@ -14,6 +16,7 @@ from numpy.typing import ArrayLike, NDArray
 
 __all__ = [
     "TiltwellError",
+    "look_up",
     "as_finite_array",
     "as_points",
     "as_scalar",
@@ -120,3 +123,17 @@ def as_bounds(value: Any, name: str = "bounds") -> tuple[tuple[float, float], ..
                 f"{name} [m] for {axis} must be finite with low < high; got ({low!r}, {high!r})"
             )
     return tuple((low, high) for low, high in pairs)
+
+
+def look_up(name: Any, index: Mapping[str, str], what: str, listing: str) -> str:
+    """Canonical name for ``name`` in ``index`` (lower-case keys, any alias -> canonical),
+    ignoring case and surrounding spaces; otherwise an error naming close matches, or
+    ``listing`` (how to see every name) when there are none."""
+    if not isinstance(name, str):
+        raise TiltwellError(f"name must be a string (a {what} name); got {type(name).__name__}")
+    key = name.strip().lower()
+    if key in index:
+        return index[key]
+    close = dict.fromkeys(index[k] for k in difflib.get_close_matches(key, list(index), n=6, cutoff=0.5))
+    hint = f"close matches: {', '.join(close)}" if close else "no close match"
+    raise TiltwellError(f"unknown {what} {name!r}; {hint}. {listing}")

@@ -12,7 +12,6 @@ source geometry (nozzle, skimmer, apertures, flight path) that sets the beam at 
 
 from __future__ import annotations
 
-import difflib
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -20,7 +19,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
-from ._validation import TiltwellError, as_scalar
+from ._validation import TiltwellError, as_scalar, look_up
 from .beam import Beam, PhasePlane
 from .constants import ATOMIC_MASS, BOLTZMANN
 
@@ -111,14 +110,7 @@ def gas(name: str) -> Gas:
     >>> gas("argon").heat_capacity_ratio
     1.6666666666666667
     """
-    if not isinstance(name, str):
-        raise TiltwellError(f"name must be a string; got {type(name).__name__}")
-    key = name.strip().lower()
-    if key not in _GAS_INDEX:
-        close = dict.fromkeys(_GAS_INDEX[k] for k in difflib.get_close_matches(key, list(_GAS_INDEX), n=4, cutoff=0.5))
-        hint = f"close matches: {', '.join(close)}" if close else f"known: {', '.join(_GASES)}"
-        raise TiltwellError(f"unknown gas {name!r}; {hint}")
-    symbol = _GAS_INDEX[key]
+    symbol = look_up(name, _GAS_INDEX, "gas", f"Built-in gases: {', '.join(_GASES)}")
     weight, gamma, _ = _GASES[symbol]
     return Gas(symbol, weight * ATOMIC_MASS, gamma)
 

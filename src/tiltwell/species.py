@@ -13,7 +13,6 @@ float64 ndarray of the same shape; a scalar input gives a 0-d array (use ``float
 
 from __future__ import annotations
 
-import difflib
 import math
 from dataclasses import dataclass
 from typing import Protocol, runtime_checkable
@@ -23,7 +22,7 @@ import scipy.constants as _sc
 from numpy.typing import ArrayLike, NDArray
 from scipy.interpolate import PchipInterpolator
 
-from tiltwell._validation import TiltwellError, as_finite_array, as_increasing, as_scalar
+from tiltwell._validation import TiltwellError, as_finite_array, as_increasing, as_scalar, look_up
 from tiltwell.constants import ATOMIC_MASS, BOHR_MAGNETON, ELECTRON_G, NUCLEAR_MAGNETON, PLANCK
 
 __all__ = [
@@ -426,14 +425,4 @@ def species(name: str) -> Species:
     >>> species("rubidium-87").name
     'Rb-87'
     """
-    if not isinstance(name, str):
-        raise TiltwellError(f"name must be a string; got {type(name).__name__}")
-    key = name.strip().lower()
-    if key in _INDEX:
-        return _CATALOGUE[_INDEX[key]]
-    close = dict.fromkeys(_INDEX[k] for k in difflib.get_close_matches(key, list(_INDEX), n=6))
-    hint = f"close matches: {', '.join(close)}" if close else "no close match"
-    raise TiltwellError(
-        f"unknown species {name!r}; {hint}. "
-        "tiltwell.catalogue() lists every name"
-    )
+    return _CATALOGUE[look_up(name, _INDEX, "species", "tiltwell.catalogue() lists every name")]
