@@ -94,36 +94,41 @@ def _print_species(name: str | None) -> None:
     print(f"  source  {particle.source}")
 
 
-def _print_quadrupole(summary: dict[str, object]) -> None:
-    def number(key: str) -> float:
-        value = summary[key]
-        assert isinstance(value, (int, float))
-        return float(value)
+def _number(summary: dict[str, object], key: str) -> float:
+    """A summary value as a float (NaN where it is missing or None)."""
+    value = summary.get(key)
+    return float(value) if isinstance(value, (int, float)) else float("nan")
 
-    print(f"{summary['species']} in an ideal quadrupole, {number('gradient'):g} T/m, depth cut at "
-          f"{number('max_field'):g} T, decelerating at {number('deceleration'):g} m/s^2")
-    print(f"  critical deceleration   {number('critical_deceleration'):.4g} m/s^2")
+
+def _print_acceptances(summary: dict[str, object], width: int) -> None:
+    rows = [
+        ("depth (axis)", f"{millikelvin(_number(summary, 'depth')):.4g} mK"),
+        ("longitudinal acceptance", f"{_number(summary, 'longitudinal_acceptance') * 1e3:.4g} mm*m/s"),
+        ("transverse acceptance", f"{_number(summary, 'transverse_acceptance') * 1e3:.4g} mm*m/s"),
+        ("6-D acceptance", f"{_number(summary, 'acceptance_6d') * 1e9:.4g} (mm*m/s)^3"),
+    ]
+    for label, value in rows:
+        print(f"  {label:{width}s} {value}")
+
+
+def _print_quadrupole(summary: dict[str, object]) -> None:
+    print(f"{summary['species']} in an ideal quadrupole, {_number(summary, 'gradient'):g} T/m, depth cut at "
+          f"{_number(summary, 'max_field'):g} T, decelerating at {_number(summary, 'deceleration'):g} m/s^2")
+    print(f"  critical deceleration   {_number(summary, 'critical_deceleration'):.4g} m/s^2")
     if not summary["bound"]:
         print("  no bound well at this deceleration")
         return
-    print(f"  depth (axis)            {millikelvin(number('depth')):.4g} mK")
-    print(f"  longitudinal acceptance {number('longitudinal_acceptance') * 1e3:.4g} mm*m/s")
-    print(f"  transverse acceptance   {number('transverse_acceptance') * 1e3:.4g} mm*m/s")
-    print(f"  6-D acceptance          {number('acceptance_6d') * 1e9:.4g} (mm*m/s)^3")
+    _print_acceptances(summary, 23)
 
 
 def _print_run(summary: dict[str, object]) -> None:
     def number(key: str) -> float:
-        value = summary.get(key)
-        return float(value) if isinstance(value, (int, float)) else float("nan")
+        return _number(summary, key)
 
     print(f"{summary['species']}: {number('initial_velocity'):.1f} -> {number('final_velocity'):.1f} m/s at "
           f"{number('deceleration'):.4g} m/s^2 over {number('length'):.3g} m in {number('duration') * 1e3:.3g} ms "
           f"(critical {number('critical_deceleration'):.4g} m/s^2)")
-    print(f"  depth (axis)             {millikelvin(number('depth')):.4g} mK")
-    print(f"  longitudinal acceptance  {number('longitudinal_acceptance') * 1e3:.4g} mm*m/s")
-    print(f"  transverse acceptance    {number('transverse_acceptance') * 1e3:.4g} mm*m/s")
-    print(f"  6-D acceptance           {number('acceptance_6d') * 1e9:.4g} (mm*m/s)^3")
+    _print_acceptances(summary, 24)
     print("  captured fraction")
     print(f"    phase-space overlap    {number('captured_fraction_overlap'):.4g}")
     print(f"    energetic 6-D          {number('captured_fraction_energy'):.4g} "
