@@ -104,3 +104,13 @@ def test_sweep_over_lengths_and_csv(tmp_path: Path) -> None:
 def test_sweep_bad_input(kwargs: dict, word: str) -> None:  # type: ignore[type-arg]
     with pytest.raises(ValueError, match=word):
         sweep(_small(10, track=False), **kwargs)
+
+
+def test_time_of_flight_in_the_summary() -> None:
+    """With a detector 0.2 m beyond the released trap (final speed 20 m/s) the mean
+    arrival time is near 0.2 m / 20 m/s = 10 ms; the spread comes from the trap-frame
+    velocities (a few m/s), so 20 % brackets it comfortably."""
+    summary = summarise(sc.load(DEMO).replace("simulation", particles=2000, detector_distance=0.2))
+    assert summary["arrival_time_mean"] == pytest.approx(0.2 / 20.0, rel=0.2)
+    assert 0 < summary["arrival_time_rms"] < summary["arrival_time_mean"]
+    assert summary["units"]["arrival_time_mean"] == "s"

@@ -20,13 +20,15 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import NDArray
 
 from ._display import html_table
 from ._validation import TiltwellError, as_scalar
 from .acceptance import TrapAcceptance, trap_acceptance
 from .beam import Beam
-from .overlap import energetic_fraction, plane_product_fraction
 from .fields import IdealQuadrupole
+from .overlap import energetic_fraction, plane_product_fraction
+from .schedule import arrival_times
 from .tracking import FieldMap, TrackingResult, track
 from .traps import Trap
 
@@ -66,6 +68,14 @@ class CaptureEstimates:
     acceptance: TrapAcceptance
     tracking: TrackingResult | None
 
+    def arrival_times(self, release_velocity: float, distance: float) -> NDArray[np.float64]:
+        """Arrival times [s] of the kept particles at a detector ``distance`` [m] beyond
+        the trap centre after release at ``release_velocity`` [m/s] (free flight from the
+        tracked final phase space, :func:`tiltwell.schedule.arrival_times`)."""
+        if self.tracking is None:
+            raise TiltwellError("no trajectories were tracked: nothing to release (track_particles=True)")
+        return arrival_times(self.tracking.final[self.tracking.kept], release_velocity, distance)
+
     def _repr_html_(self) -> str:
         rows = [
             ("phase-space overlap", f"{self.overlap:.4g}"),
@@ -99,6 +109,7 @@ def capture_estimates(
     method: str = "verlet",
     track_particles: bool = True,
     rtol: float = 1e-2,
+    switch_on_time: float = 0.0,
     progress: bool = False,
 ) -> CaptureEstimates:
     """Captured fraction of ``beam`` in ``trap`` decelerating at ``deceleration`` [m/s^2]
@@ -116,10 +127,15 @@ def capture_estimates(
         Integrator name, see :func:`tiltwell.tracking.track`.
     track_particles : bool
         False skips the trajectories (``tracked`` is NaN).
+    switch_on_time : float
+        The trap depth ramps up linearly over this time [s] (0: on at once). Only the
+        trajectories see it; the overlap and energetic estimates assume a trap that is
+        fully on.
     """
     a = as_scalar(deceleration, "deceleration", "m/s^2")
     duration = as_scalar(duration, "duration", "s", low=0.0, low_open=True)
     mismatch = as_scalar(mismatch, "mismatch", "m/s")
+    switch_on_time = as_scalar(switch_on_time, "switch_on_time", "s", low=0.0, high=duration)
     if isinstance(particles, bool) or not isinstance(particles, (int, np.integer)) or particles < 1:
         raise TiltwellError(f"particles must be an integer >= 1; got {particles!r}")
     acceptance = trap_acceptance(trap, a, rtol=rtol)
@@ -137,8 +153,9 @@ def capture_estimates(
     step = min(step, duration)
     # Coil fields are costly to differentiate at every step: interpolate a precomputed map.
     field_map = None if isinstance(trap.source, IdealQuadrupole) else FieldMap.from_trap(trap)
+    ramp = None if switch_on_time == 0.0 else (lambda t: min(max(t / switch_on_time, 0.0), 1.0))
     result = track(trap, sample, duration, step, deceleration=a, method=method, field_map=field_map,
-                   progress=progress)
+                   ramp=ramp, progress=progress)
     return CaptureEstimates(
         overlap, energetic, energetic_error, result.fraction, result.binomial_error, int(particles), acceptance, result
     )

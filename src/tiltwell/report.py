@@ -13,13 +13,15 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from .beam import Beam
 from .capture import CaptureEstimates, capture_estimates
-from .hardware import ELECTRICAL_CAUTION
 from .fields import FieldSource, IdealQuadrupole, anti_helmholtz
-from .source import Aperture, Source, gas
-from .schedule import CoilTiming, Schedule, coil_timing, constant_deceleration
+from .hardware import ELECTRICAL_CAUTION
 from .scenario import Scenario
+from .schedule import CoilTiming, Schedule, coil_timing, constant_deceleration
+from .source import Aperture, Source, gas
 from .species import LinearZeeman, Species, species
 from .traps import Trap
 
@@ -46,6 +48,8 @@ UNITS: dict[str, str] = {
     "duration": "s",
     "coils": "1",
     "mismatch": "m/s",
+    "arrival_time_mean": "s",
+    "arrival_time_rms": "s",
 }
 
 @dataclass(frozen=True)
@@ -129,9 +133,15 @@ def summarise(scenario: Scenario, *, progress: bool = False) -> dict[str, Any]:
     estimates = capture_estimates(
         built.trap, schedule.deceleration, built.beam, schedule.duration,
         particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
-        method=sim.method, track_particles=sim.track, rtol=sim.rtol, progress=progress,
+        method=sim.method, track_particles=sim.track, rtol=sim.rtol, switch_on_time=min(sim.switch_on_time,
+        schedule.duration), progress=progress,
     )
     summary = _numbers(built, estimates)
+    if sim.detector_distance is not None and estimates.tracking is not None:
+        times = estimates.arrival_times(schedule.final_velocity, sim.detector_distance)
+        arrived = times[np.isfinite(times)]
+        summary["arrival_time_mean"] = float(arrived.mean()) if arrived.size else None
+        summary["arrival_time_rms"] = float(arrived.std()) if arrived.size else None
     table = timing(scenario, schedule)
     if table is not None:
         summary["coils"] = int(table.positions.size)

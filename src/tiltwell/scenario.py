@@ -115,6 +115,10 @@ class SimulationSection:
     samples: int = _key("", "samples of each 1-D cut", 101, 100_001, default=2001)
     rtol: float = _key("", "relative accuracy of the 6-D acceptance", 1e-4, 0.5, default=1e-2)
     track: bool = _key("", "integrate trajectories (false: overlap and energetic only)", default=True)
+    switch_on_time: float = _key("s", "linear ramp of the trap depth at switch-on (trajectories only)", 0.0, 1.0,
+                                 default=0.0)
+    detector_distance: float | None = _key("m", "time-of-flight detector beyond the trap centre at release",
+                                           0.0, 100.0, open_low=True)
 
 
 _SECTIONS: dict[str, type] = {
