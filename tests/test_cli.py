@@ -135,3 +135,23 @@ def test_run_scenario_errors_are_one_line(tmp_path, edit: str, word: str) -> Non
 def test_keys_lists_the_scenario_keys(capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["keys"]) == 0
     assert "flight_distance [m]" in capsys.readouterr().out
+
+
+def test_run_writes_the_coil_timing_table(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    """The CSV's passing times put the trap centre on each coil: z(t) = v0 t - a t^2 / 2
+    (constant-deceleration kinematics) at the listed coil positions."""
+    import numpy as np
+
+    from tiltwell import build
+    from tiltwell import scenario as sc
+
+    path = _scenario_file(tmp_path, particles=100, track=False)
+    out = tmp_path / "timing.csv"
+    assert main(["run", str(path), "--timing", str(out)]) == 0
+    lines = [line for line in out.read_text().splitlines() if not line.startswith("#")]
+    rows = np.array([[float(v) for v in line.split(",")[1:3]] for line in lines[1:]])
+    plan = build(sc.load(path)).schedule
+    v0, a = plan.initial_velocity, plan.deceleration
+    positions, times = rows[:, 0], rows[:, 1]
+    assert np.allclose(v0 * times - 0.5 * a * times**2, positions, rtol=1e-9, atol=1e-12)
+    assert "electrical-safety" in out.read_text()

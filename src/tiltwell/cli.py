@@ -28,7 +28,7 @@ from ._validation import TiltwellError, as_scalar
 from .acceptance import trap_acceptance
 from .constants import ATOMIC_MASS, BOHR_MAGNETON, millikelvin
 from .fields import IdealQuadrupole
-from .report import summarise
+from .report import build, summarise, timing
 from .species import catalogue, species
 from .sweep import sweep, sweep_csv
 from .traps import Trap
@@ -140,8 +140,14 @@ def _print_run(summary: dict[str, object]) -> None:
         print(f"  {summary['caution']}")
 
 
-def _run(path: str, as_json: bool, progress: bool) -> None:
-    summary = summarise(scenario_module.load(path), progress=progress)
+def _run(path: str, as_json: bool, progress: bool, timing_path: str | None) -> None:
+    scenario = scenario_module.load(path)
+    if timing_path is not None:
+        table = timing(scenario, build(scenario).schedule)
+        if table is None:
+            raise TiltwellError("--timing needs [deceleration] pitch [m] and peak_current [A] in the scenario")
+        table.to_csv(timing_path)
+    summary = summarise(scenario, progress=progress)
     if as_json:
         print(json.dumps(summary))
     else:
@@ -184,6 +190,7 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("file")
     run.add_argument("--json", action="store_true", help="print one JSON object (SI units)")
     run.add_argument("--progress", action="store_true", help="show a progress bar for the trajectories")
+    run.add_argument("--timing", metavar="CSV", help="also write the coil timing table (needs pitch, peak_current)")
     sweeping = commands.add_parser("sweep", help="trade-off table over decelerations (or lengths), as CSV")
     sweeping.add_argument("file")
     sweeping.add_argument("--start", type=float, required=True, help="first deceleration [m/s^2] (or length [m])")
@@ -213,7 +220,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     arguments = _parser().parse_args(argv)
     try:
         if arguments.command == "run":
-            _run(arguments.file, arguments.json, arguments.progress)
+            _run(arguments.file, arguments.json, arguments.progress, arguments.timing)
         elif arguments.command == "sweep":
             _sweep(arguments)
         elif arguments.command == "demo":
