@@ -25,7 +25,7 @@ from .source import Aperture, Source, gas
 from .species import LinearZeeman, Species, species
 from .traps import Trap
 
-__all__ = ["Built", "UNITS", "build", "summarise"]
+__all__ = ["Built", "UNITS", "build", "estimate", "summarise", "timing"]
 
 #: SI unit of every number in a summary.
 UNITS: dict[str, str] = {
@@ -125,17 +125,25 @@ def timing(scenario: Scenario, schedule: Schedule) -> CoilTiming | None:
     return coil_timing(schedule, d.pitch, peak_current=d.peak_current, rise_time=d.rise_time)
 
 
+def estimate(scenario: Scenario, built: Built | None = None, *, progress: bool = False) -> CaptureEstimates:
+    """The three captured-fraction estimates of a scenario (its [simulation] settings
+    passed to :func:`tiltwell.capture.capture_estimates`); ``built`` reuses a :func:`build`."""
+    built = build(scenario) if built is None else built
+    sim, schedule = scenario.simulation, built.schedule
+    return capture_estimates(
+        built.trap, schedule.deceleration, built.beam, schedule.duration,
+        particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
+        method=sim.method, track_particles=sim.track, rtol=sim.rtol,
+        switch_on_time=min(sim.switch_on_time, schedule.duration), progress=progress,
+    )
+
+
 def summarise(scenario: Scenario, *, progress: bool = False) -> dict[str, Any]:
     """All numbers of a scenario as a JSON-ready dict (SI), with a ``units`` map."""
     built = build(scenario)
     sim = scenario.simulation
     schedule = built.schedule
-    estimates = capture_estimates(
-        built.trap, schedule.deceleration, built.beam, schedule.duration,
-        particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
-        method=sim.method, track_particles=sim.track, rtol=sim.rtol, switch_on_time=min(sim.switch_on_time,
-        schedule.duration), progress=progress,
-    )
+    estimates = estimate(scenario, built, progress=progress)
     summary = _numbers(built, estimates)
     if sim.detector_distance is not None and estimates.tracking is not None:
         times = estimates.arrival_times(schedule.final_velocity, sim.detector_distance)
