@@ -22,10 +22,11 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/run.py
 
 lab: $(STAMP)
-	@echo "The notebook explorer arrives with the explorer issue; for now: $(BIN)/python -i -c 'import tiltwell'"
+	$(BIN)/jupyter lab notebooks/01-quickstart.ipynb
 
 demo: $(STAMP)
-	@echo "The demo figures arrive with the explorer issue."
+	$(BIN)/tiltwell demo --out demo
+	$(BIN)/tiltwell figures demo/demo.toml --out demo/figures
 
 clean:
 	rm -rf $(VENV) build src/*.egg-info .pytest_cache .mypy_cache

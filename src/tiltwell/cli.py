@@ -2,7 +2,8 @@
 
 ``tiltwell run FILE [--json]`` computes a scenario; ``tiltwell sweep FILE ...`` writes a
 trade-off table as CSV; ``tiltwell demo --out DIR`` writes the invented demo scenario and
-runs it; ``tiltwell keys`` lists every scenario key with unit and range;
+runs it; ``tiltwell figures FILE --out DIR [--formats pdf,svg,png]`` writes a scenario's
+figures; ``tiltwell keys`` lists every scenario key with unit and range;
 ``tiltwell species [NAME]`` lists the catalogue or shows one species;
 ``tiltwell quadrupole SPECIES --gradient G --max-field B --deceleration A [--json]``
 gives the acceptance of an ideal quadrupole trap of finite depth, a first estimate.
@@ -183,6 +184,16 @@ def _demo(out: str, as_json: bool) -> None:
         _print_run(summary)
 
 
+def _figures(arguments: argparse.Namespace) -> None:
+    from .figures import scenario_figures  # matplotlib is loaded only for this command
+
+    scenario = scenario_module.load(arguments.file)
+    formats = tuple(part.strip() for part in arguments.formats.split(","))
+    for path in scenario_figures(scenario, arguments.out, formats=formats, width=arguments.width,
+                                 height=arguments.height, dpi=arguments.dpi):
+        print(f"wrote {path}")
+
+
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="tiltwell", description=__doc__.splitlines()[0])
     commands = parser.add_subparsers(dest="command", required=True)
@@ -203,6 +214,13 @@ def _parser() -> argparse.ArgumentParser:
     demo = commands.add_parser("demo", help="write the invented demo scenario and run it")
     demo.add_argument("--out", required=True, help="folder for the demo files")
     demo.add_argument("--json", action="store_true", help="print the summary as one JSON object")
+    drawing = commands.add_parser("figures", help="write a scenario's figures (PDF, SVG, PNG) for proposals")
+    drawing.add_argument("file")
+    drawing.add_argument("--out", required=True, help="folder for the figures (created if missing)")
+    drawing.add_argument("--formats", default="pdf,svg,png", help="comma-separated, from pdf, svg, png; default all")
+    drawing.add_argument("--width", type=float, default=6.0, help="figure width [in], default 6.0")
+    drawing.add_argument("--height", type=float, default=4.0, help="figure height [in], default 4.0")
+    drawing.add_argument("--dpi", type=float, default=300.0, help="resolution [1/in], default 300")
     commands.add_parser("keys", help="every scenario key with unit, range and meaning")
     listing = commands.add_parser("species", help="list the species catalogue or show one species")
     listing.add_argument("name", nargs="?")
@@ -225,6 +243,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             _sweep(arguments)
         elif arguments.command == "demo":
             _demo(arguments.out, arguments.json)
+        elif arguments.command == "figures":
+            _figures(arguments)
         elif arguments.command == "keys":
             print(scenario_module.describe())
         elif arguments.command == "species":
