@@ -517,3 +517,11 @@ def test_bad_input_names_the_argument(call: Callable[[], object], pattern: str) 
 def test_unknown_keyword_is_an_error() -> None:
     with pytest.raises(TypeError):
         coil_timing(_schedule("stop"), 0.02, peak_current=100.0, windw=1.0)  # type: ignore[call-arg]
+
+
+def test_absurd_coil_count_is_refused() -> None:
+    """A pitch that would give millions of coils is a typo, not a plan: a clear error
+    instead of an allocation failure."""
+    plan = constant_deceleration(400.0, 0.0, deceleration=1e-3)  # 80,000 km
+    with pytest.raises(TiltwellError, match="pitch"):
+        coil_timing(plan, 0.01, peak_current=100.0)

@@ -34,6 +34,9 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
+#: Most coils a timing table holds (a guard against a pitch or deceleration typed wrong).
+MAX_COILS = 100_000
+
 #: Relative slack for positions that overshoot the schedule's length by rounding.
 _ROUNDING = 1e-12
 
@@ -291,6 +294,10 @@ def coil_timing(
     count = math.floor((length * (1.0 + _ROUNDING) - start) / spacing) + 1
     if count < 1:
         raise TiltwellError(f"pitch [m] puts no coil inside [0, {length:g}] m; got pitch={spacing!r}, first coil at {start!r} m")
+    if count > MAX_COILS:
+        raise TiltwellError(
+            f"pitch [m] gives {count} coils over {length:g} m, more than {MAX_COILS}; got pitch={spacing!r}"
+        )
     positions = start + spacing * np.arange(count)
     positions = np.minimum(positions, length)  # only rounding can push the last one past
     on = schedule.time_at(np.maximum(positions - half, 0.0))
