@@ -109,6 +109,7 @@ def capture_estimates(
     method: str = "verlet",
     track_particles: bool = True,
     rtol: float = 1e-2,
+    samples: int = 2001,
     switch_on_time: float = 0.0,
     progress: bool = False,
 ) -> CaptureEstimates:
@@ -127,6 +128,8 @@ def capture_estimates(
         Integrator name, see :func:`tiltwell.tracking.track`.
     track_particles : bool
         False skips the trajectories (``tracked`` is NaN).
+    samples : int
+        Samples of each 1-D cut (axis, radial) of the acceptance.
     switch_on_time : float
         The trap depth ramps up linearly over this time [s] (0: on at once). Only the
         trajectories see it; the overlap and energetic estimates assume a trap that is
@@ -138,7 +141,7 @@ def capture_estimates(
     switch_on_time = as_scalar(switch_on_time, "switch_on_time", "s", low=0.0, high=duration)
     if isinstance(particles, bool) or not isinstance(particles, (int, np.integer)) or particles < 1:
         raise TiltwellError(f"particles must be an integer >= 1; got {particles!r}")
-    acceptance = trap_acceptance(trap, a, rtol=rtol)
+    acceptance = trap_acceptance(trap, a, samples=samples, rtol=rtol)
     overlap = plane_product_fraction(acceptance.longitudinal, acceptance.transverse, beam, mismatch)
     if acceptance.energetic is None:
         empty = CaptureEstimates(overlap, 0.0, 0.0, 0.0 if track_particles else math.nan, 0.0, int(particles),

@@ -133,7 +133,7 @@ def estimate(scenario: Scenario, built: Built | None = None, *, progress: bool =
     return capture_estimates(
         built.trap, schedule.deceleration, built.beam, schedule.duration,
         particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
-        method=sim.method, track_particles=sim.track, rtol=sim.rtol,
+        method=sim.method, track_particles=sim.track, rtol=sim.rtol, samples=sim.samples,
         switch_on_time=min(sim.switch_on_time, schedule.duration), progress=progress,
     )
 
@@ -144,7 +144,7 @@ def summarise(scenario: Scenario, *, progress: bool = False) -> dict[str, Any]:
     sim = scenario.simulation
     schedule = built.schedule
     estimates = estimate(scenario, built, progress=progress)
-    summary = _numbers(built, estimates)
+    summary = _numbers(built, estimates, sim.samples)
     if sim.detector_distance is not None and estimates.tracking is not None:
         times = estimates.arrival_times(schedule.final_velocity, sim.detector_distance)
         arrived = times[np.isfinite(times)]
@@ -158,7 +158,7 @@ def summarise(scenario: Scenario, *, progress: bool = False) -> dict[str, Any]:
     return summary
 
 
-def _numbers(built: Built, estimates: CaptureEstimates) -> dict[str, Any]:
+def _numbers(built: Built, estimates: CaptureEstimates, samples: int) -> dict[str, Any]:
     acceptance = estimates.acceptance
     schedule = built.schedule
 
@@ -179,7 +179,7 @@ def _numbers(built: Built, estimates: CaptureEstimates) -> dict[str, Any]:
         "captured_fraction_mc_error": finite(estimates.tracked_error),
         "mc_particles": estimates.particles,
         "deceleration": schedule.deceleration,
-        "critical_deceleration": built.trap.critical_deceleration(),
+        "critical_deceleration": built.trap.critical_deceleration(samples),
         "initial_velocity": schedule.initial_velocity,
         "final_velocity": schedule.final_velocity,
         "length": schedule.length,
