@@ -4,6 +4,8 @@ The stable core (see DESIGN.md): :func:`separatrix`, :func:`loop_field`,
 :func:`acceptance_6d`, :func:`gaussian_fraction`. SI units throughout.
 """
 
+from typing import Any
+
 from ._validation import TiltwellError
 from .acceptance import (
     AcceptanceCurve,
@@ -32,6 +34,16 @@ from .traps import Trap
 
 __version__ = "0.1.0"
 
+
+def __getattr__(name: str) -> Any:
+    """The explorer (ipywidgets + Bokeh) is imported on first use, so scripts and the
+    command line start without loading the notebook stack."""
+    if name in ("explore", "Explorer"):
+        from . import explorer
+
+        return getattr(explorer, name)
+    raise AttributeError(f"module 'tiltwell' has no attribute {name!r}")
+
 __all__ = [
     "AcceptanceCurve",
     "Aperture",
@@ -43,6 +55,7 @@ __all__ = [
     "CoilTiming",
     "ELECTRICAL_CAUTION",
     "EnergeticAcceptance",
+    "Explorer",
     "FieldMap",
     "Gas",
     "HardwareEstimate",
@@ -70,6 +83,7 @@ __all__ = [
     "constant_deceleration",
     "energetic_acceptance",
     "energetic_fraction",
+    "explore",
     "from_millikelvin",
     "gas",
     "gaussian_fraction",
