@@ -21,8 +21,11 @@ test: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python benchmarks/run.py
 
+# JupyterLab refuses to start as root unless told; containers often run as root.
+ROOT_FLAG := $(if $(filter 0,$(shell id -u)),--allow-root,)
+
 lab: $(STAMP)
-	$(BIN)/jupyter lab notebooks/01-quickstart.ipynb
+	$(BIN)/jupyter lab $(ROOT_FLAG) notebooks/01-quickstart.ipynb
 
 demo: $(STAMP)
 	$(BIN)/tiltwell demo --out demo
