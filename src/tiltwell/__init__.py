@@ -18,9 +18,11 @@ from .acceptance import (
 from .constants import from_millikelvin, millikelvin
 from .beam import Beam, PhasePlane
 from .capture import CaptureEstimates, capture_estimates
+from .coilarray import CoilArray, CurrentPlan, trap_currents, waveforms
 from .energetic import EnergeticAcceptance, acceptance_6d, energetic_acceptance
 from .fields import CoilSet, Coil, IdealQuadrupole, anti_helmholtz, loop_field
 from .hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
+from .moving import PhaseScan, moving_trap_phases
 from .overlap import energetic_fraction, gaussian_fraction, plane_product_fraction
 from .report import build, summarise
 from .scenario import Scenario
@@ -51,8 +53,10 @@ __all__ = [
     "BreitRabi",
     "CaptureEstimates",
     "Coil",
+    "CoilArray",
     "CoilSet",
     "CoilTiming",
+    "CurrentPlan",
     "ELECTRICAL_CAUTION",
     "EnergeticAcceptance",
     "Explorer",
@@ -62,6 +66,7 @@ __all__ = [
     "IdealQuadrupole",
     "LinearZeeman",
     "PhasePlane",
+    "PhaseScan",
     "Scenario",
     "Schedule",
     "Separatrix",
@@ -92,6 +97,7 @@ __all__ = [
     "loop_field",
     "millikelvin",
     "mixture",
+    "moving_trap_phases",
     "plane_product_fraction",
     "separatrix",
     "species",
@@ -101,4 +107,6 @@ __all__ = [
     "track",
     "transverse_acceptance",
     "trap_acceptance",
+    "trap_currents",
+    "waveforms",
 ]
