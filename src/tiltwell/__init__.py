@@ -19,6 +19,7 @@ from .constants import from_millikelvin, millikelvin
 from .beam import Beam, PhasePlane
 from .capture import CaptureEstimates, capture_estimates
 from .coilarray import CoilArray, CurrentPlan, trap_currents, waveforms
+from .device import CoilFieldMap, DeviceResult, UniformMotion, track_device
 from .energetic import EnergeticAcceptance, acceptance_6d, energetic_acceptance
 from .fields import CoilSet, Coil, IdealQuadrupole, anti_helmholtz, loop_field
 from .hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
@@ -54,9 +55,11 @@ __all__ = [
     "CaptureEstimates",
     "Coil",
     "CoilArray",
+    "CoilFieldMap",
     "CoilSet",
     "CoilTiming",
     "CurrentPlan",
+    "DeviceResult",
     "ELECTRICAL_CAUTION",
     "EnergeticAcceptance",
     "Explorer",
@@ -77,6 +80,7 @@ __all__ = [
     "TrackingResult",
     "Trap",
     "TrapAcceptance",
+    "UniformMotion",
     "acceptance_6d",
     "acceptance_curve",
     "anti_helmholtz",
@@ -105,6 +109,7 @@ __all__ = [
     "sweep",
     "terminal_velocity",
     "track",
+    "track_device",
     "transverse_acceptance",
     "trap_acceptance",
     "trap_currents",
