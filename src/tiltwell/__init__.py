@@ -19,7 +19,7 @@ from .constants import from_millikelvin, millikelvin
 from .beam import Beam, PhasePlane
 from .capture import CaptureEstimates, capture_estimates
 from .coilarray import CoilArray, CurrentPlan, trap_currents, waveforms
-from .device import CoilFieldMap, DeviceResult, UniformMotion, track_device
+from .device import CoilFieldMap, UniformMotion, track_device
 from .energetic import EnergeticAcceptance, acceptance_6d, energetic_acceptance
 from .fields import CoilSet, Coil, IdealQuadrupole, anti_helmholtz, loop_field
 from .hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
@@ -59,7 +59,6 @@ __all__ = [
     "CoilSet",
     "CoilTiming",
     "CurrentPlan",
-    "DeviceResult",
     "ELECTRICAL_CAUTION",
     "EnergeticAcceptance",
     "Explorer",

@@ -9,7 +9,8 @@ instead of a rigid trap: the hand-over from coil to coil (the ripple of
   tabulated once on an axisymmetric grid and interpolated bilinearly (all coils are equal);
 - :class:`UniformMotion`: a trap moving at constant speed (a :class:`Schedule` must slow down);
 - :func:`track_device`: velocity-Verlet trajectories in the lab frame, lost at the walls of a
-  box that moves with the trap; returns a :class:`DeviceResult`.
+  box that moves with the trap; returns a :class:`~tiltwell.tracking.TrackingResult`
+  (``final`` in the trap frame: z - z_trap, vz - v_trap).
 
 SI units throughout (m, s, T, A, J).
 """
@@ -27,8 +28,9 @@ from .coilarray import CoilArray, _check_array, trap_currents
 from .fields import Coil, loop_field
 from .schedule import Schedule
 from .species import Species
+from .tracking import TrackingResult
 
-__all__ = ["CoilFieldMap", "DeviceResult", "UniformMotion", "track_device"]
+__all__ = ["CoilFieldMap", "UniformMotion", "track_device"]
 
 FloatArray = NDArray[np.float64]
 
@@ -202,40 +204,6 @@ class UniformMotion:
         return np.full(np.shape(as_finite_array(t, "t", "s")), self.speed)
 
 
-@dataclass(frozen=True, eq=False)
-class DeviceResult:
-    """What :func:`track_device` returns.
-
-    Attributes
-    ----------
-    times : ndarray, shape (K,)
-        Step times [s], from 0 to the duration.
-    survival : ndarray, shape (K,)
-        Fraction of all particles inside the moving box at ``times``.
-    final : ndarray, shape (N, 6)
-        (x, y, z - z_trap, vx, vy, vz - v_trap) [m, m/s] in the trap frame at the end, or at
-        the end of the step in which the particle left the box.
-    kept : ndarray of bool, shape (N,)
-        Whether each particle is inside at the end.
-    lost_time : ndarray, shape (N,)
-        End of the step in which each particle left [s]; 0 if it started outside, inf if kept.
-    time_step : float
-        Step used [s].
-    """
-
-    times: FloatArray
-    survival: FloatArray
-    final: FloatArray
-    kept: NDArray[np.bool_]
-    lost_time: FloatArray
-    time_step: float
-
-    @property
-    def fraction(self) -> float:
-        """Fraction of the particles kept to the end."""
-        return float(np.count_nonzero(self.kept)) / self.kept.size
-
-
 def _device_force(field_map: CoilFieldMap, species: Species, positions: FloatArray, centres: FloatArray,
                   currents: FloatArray) -> FloatArray:
     """Force -W'(|B|) grad|B| [N], shape (n, 3), with grad|B| = J^T B / |B| (zero where B = 0)."""
@@ -264,7 +232,7 @@ def track_device(
     duration: float,
     box_half_widths: tuple[float, float, float],
     field_map: CoilFieldMap | None = None,
-) -> DeviceResult:
+) -> TrackingResult:
     """Track particles in the lab frame through the coil array's moving field.
 
     Parameters
@@ -293,7 +261,10 @@ def track_device(
 
     Returns
     -------
-    DeviceResult
+    TrackingResult
+        As from :func:`tiltwell.track`, with ``final`` in the trap frame
+        (x, y, z - z_trap, vx, vy, vz - v_trap) and ``lost_time`` 0 for particles that
+        start outside the moving box.
 
     Notes
     -----
@@ -386,4 +357,4 @@ def track_device(
     lost_time = np.where(kept, np.inf, lost_step * dt)
     for item in (times, survival, final, kept, lost_time):
         item.setflags(write=False)
-    return DeviceResult(times, survival, final, kept, lost_time, dt)
+    return TrackingResult(times, survival, final, kept, lost_time, "verlet (lab frame, coil array)", dt)
