@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import numbers
 from collections.abc import Mapping
 from typing import Any
 
@@ -18,6 +19,7 @@ __all__ = [
     "TiltwellError",
     "look_up",
     "as_finite_array",
+    "as_integer",
     "as_points",
     "as_scalar",
     "as_bounds",
@@ -68,6 +70,17 @@ def as_scalar(
     if not inside:
         raise TiltwellError(f"{name} [{unit}] must be finite and in {allowed}; got {number!r}")
     return number
+
+
+def as_integer(value: Any, name: str, low: int, high: int | None = None) -> int:
+    """Return ``value`` as an int in [low, high] (no upper end when ``high`` is None), or
+    raise naming ``name``; bools are not integers here."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or not (
+        low <= int(value) and (high is None or int(value) <= high)
+    ):
+        allowed = f"[{low}, {high}]" if high is not None else f">= {low}"
+        raise TiltwellError(f"{name} must be an integer {allowed}; got {value!r}")
+    return int(value)
 
 
 def as_finite_array(value: ArrayLike, name: str, unit: str, *, ndim: int | None = None) -> NDArray[np.float64]:

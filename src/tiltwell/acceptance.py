@@ -15,12 +15,19 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from ._validation import as_finite_array, as_scalar
 from ._display import html_table
+from ._validation import as_finite_array, as_integer, as_scalar
 from .constants import millikelvin
-from .energetic import KNOWN_ESCAPE_SLACK, EnergeticAcceptance, _component, _touches_wall, energetic_acceptance, escape_level
+from .energetic import (
+    KNOWN_ESCAPE_SLACK,
+    EnergeticAcceptance,
+    _component,
+    _touches_wall,
+    energetic_acceptance,
+    escape_level,
+)
 from .separatrix import Separatrix, separatrix
-from .traps import Trap, _count
+from .traps import Trap
 
 __all__ = [
     "AcceptanceCurve",
@@ -223,7 +230,7 @@ class _Sampler:
         self.trap = trap
         self.mass = trap.mass
         self.centre = (0.5 * (x0 + x1), 0.5 * (y0 + y1), 0.5 * (z0 + z1))
-        self.z = np.linspace(z0, z1, _count(samples))
+        self.z = np.linspace(z0, z1, as_integer(samples, "samples", 3))
         self.x = np.linspace(x0, x1, self.z.size)
         self.axis = trap.potential(self.centre[0], self.centre[1], self.z)
         self.radial: dict[float, FloatArray] = {}

@@ -17,16 +17,14 @@ Phase-space arrays have shape (N, 6), columns (x, y, z, vx, vy, vz) [m, m/s].
 from __future__ import annotations
 
 import math
-import numbers
 from collections.abc import Iterator
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
 from ._display import html_table
-from ._validation import TiltwellError, as_finite_array, as_scalar
+from ._validation import TiltwellError, as_finite_array, as_integer, as_scalar
 
 __all__ = ["Beam", "PhasePlane"]
 
@@ -139,12 +137,6 @@ class PhasePlane:
 _COLUMNS = {"horizontal": (0, 3), "vertical": (1, 4), "longitudinal": (2, 5)}
 
 
-def _count(value: Any, name: str, low: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < low:
-        raise TiltwellError(f"{name} must be an integer >= {low}; got {value!r}")
-    return int(value)
-
-
 @dataclass(frozen=True)
 class Beam:
     """A Gaussian beam relative to its synchronous particle.
@@ -182,10 +174,10 @@ class Beam:
         a Cholesky factor of :meth:`covariance` shapes them, so the concatenation equals
         :meth:`sample` ``(n, seed)``, whatever ``chunk`` is.
         """
-        n = _count(n, "n", 0)
-        chunk = _count(chunk, "chunk", 1)
+        n = as_integer(n, "n", 0)
+        chunk = as_integer(chunk, "chunk", 1)
         if seed is not None:
-            _count(seed, "seed", 0)
+            as_integer(seed, "seed", 0)
         factor = np.linalg.cholesky(self.covariance())
         rng = np.random.default_rng(seed)
 

@@ -23,7 +23,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ._display import html_table
-from ._validation import TiltwellError, as_scalar
+from ._validation import TiltwellError, as_integer, as_scalar
 from .acceptance import TrapAcceptance, trap_acceptance
 from .beam import Beam
 from .fields import IdealQuadrupole
@@ -139,8 +139,7 @@ def capture_estimates(
     duration = as_scalar(duration, "duration", "s", low=0.0, low_open=True)
     mismatch = as_scalar(mismatch, "mismatch", "m/s")
     switch_on_time = as_scalar(switch_on_time, "switch_on_time", "s", low=0.0, high=duration)
-    if isinstance(particles, bool) or not isinstance(particles, (int, np.integer)) or particles < 1:
-        raise TiltwellError(f"particles must be an integer >= 1; got {particles!r}")
+    particles = as_integer(particles, "particles", 1)
     acceptance = trap_acceptance(trap, a, samples=samples, rtol=rtol)
     overlap = plane_product_fraction(acceptance.longitudinal, acceptance.transverse, beam, mismatch)
     if acceptance.energetic is None:

@@ -26,7 +26,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ._files import atomic_write_text
-from ._validation import TiltwellError, as_finite_array, as_scalar
+from ._validation import TiltwellError, as_finite_array, as_integer, as_scalar
 from .constants import VACUUM_PERMEABILITY
 from .fields import Coil, CoilSet
 from .hardware import ELECTRICAL_CAUTION
@@ -35,14 +35,6 @@ from .schedule import Schedule
 __all__ = ["CoilArray", "CurrentPlan", "on_axis_response", "trap_currents", "waveforms"]
 
 FloatArray = NDArray[np.float64]
-
-
-def _integer(value: object, name: str, low: int, high: int | None = None) -> int:
-    """``value`` as an int in [low, high], or raise naming ``name``."""
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < low or (high is not None and value > high):
-        allowed = f"[{low}, {high}]" if high is not None else f">= {low}"
-        raise TiltwellError(f"{name} must be an integer {allowed}; got {value!r}")
-    return int(value)
 
 
 @dataclass(frozen=True)
@@ -80,8 +72,8 @@ class CoilArray:
     active: int = 4
 
     def __post_init__(self) -> None:
-        count = _integer(self.count, "count", 2)
-        active = _integer(self.active, "active", 2, count)
+        count = as_integer(self.count, "count", 2)
+        active = as_integer(self.active, "active", 2, count)
         if active % 2:
             raise TiltwellError(f"active must be an even integer in [2, {count}]; got {active!r}")
         limit = self.max_current
@@ -91,7 +83,7 @@ class CoilArray:
             "count": count,
             "pitch": as_scalar(self.pitch, "pitch", "m", low=0.0, low_open=True),
             "first": as_scalar(self.first, "first", "m"),
-            "turns": _integer(self.turns, "turns", 1),
+            "turns": as_integer(self.turns, "turns", 1),
             "max_current": limit,
             "active": active,
         }
@@ -109,7 +101,7 @@ class CoilArray:
 
     def coil(self, k: int, current: float) -> Coil:
         """Coil ``k`` (0 <= k < count) carrying ``current`` [A] per turn."""
-        index = _integer(k, "k", 0, self.count - 1)
+        index = as_integer(k, "k", 0, self.count - 1)
         return Coil(self.radius, float(self.positions[index]), current, self.turns, self.width, self.height)
 
     def field_set(self, currents: ArrayLike) -> CoilSet:

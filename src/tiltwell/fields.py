@@ -23,7 +23,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.special import ellipe, ellipkm1
 
-from tiltwell._validation import TiltwellError, as_points, as_scalar
+from tiltwell._validation import TiltwellError, as_integer, as_points, as_scalar
 from tiltwell.constants import VACUUM_PERMEABILITY
 
 __all__ = ["FieldSource", "Coil", "CoilSet", "IdealQuadrupole", "anti_helmholtz", "loop_field"]
@@ -169,13 +169,6 @@ class FieldSource(Protocol):
         ...
 
 
-def _count(value: object, name: str, *, low: int = 1) -> int:
-    """Return ``value`` as an int >= ``low``, or raise naming ``name``."""
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < low:
-        raise TiltwellError(f"{name} must be an integer >= {low}; got {value!r}")
-    return int(value)
-
-
 @dataclasses.dataclass(frozen=True)
 class Coil:
     """A circular coil on the z axis whose winding has a rectangular cross-section.
@@ -224,10 +217,10 @@ class Coil:
             "radius": radius,
             "z": as_scalar(self.z, "z", "m"),
             "current": as_scalar(self.current, "current", "A"),
-            "turns": _count(self.turns, "turns"),
+            "turns": as_integer(self.turns, "turns", 1),
             "width": width,
             "height": as_scalar(self.height, "height", "m", low=0.0),
-            "filaments": _count(self.filaments, "filaments"),
+            "filaments": as_integer(self.filaments, "filaments", 1),
         }
         for name, value in checked.items():
             object.__setattr__(self, name, value)

@@ -10,10 +10,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-import numpy as np
-
 from ._display import html_table
-from ._validation import TiltwellError, as_scalar
+from ._validation import TiltwellError, as_integer, as_scalar
 from .constants import VACUUM_PERMEABILITY
 
 __all__ = [
@@ -166,8 +164,7 @@ def hardware_estimate(
     current = as_scalar(peak_current, "peak_current", "A", low=0.0, low_open=True)
     duration = as_scalar(pulse_duration, "pulse_duration", "s", low=0.0, low_open=True)
     area = as_scalar(wire_area, "wire_area", "m^2", low=0.0, low_open=True)
-    if isinstance(turns, bool) or not isinstance(turns, (int, np.integer)) or turns < 1:
-        raise TiltwellError(f"turns must be an integer >= 1; got {turns!r}")
+    as_integer(turns, "turns", 1)
     radius = as_scalar(coil_radius, "coil_radius", "m", low=0.0, low_open=True)
     rise = as_scalar(rise_time, "rise_time", "s", low=0.0, high=0.5 * duration, low_open=True)
     rho = as_scalar(resistivity, "resistivity", "Ohm·m", low=0.0, low_open=True)

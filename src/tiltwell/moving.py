@@ -10,12 +10,11 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import optimize
 
-from ._validation import TiltwellError, as_finite_array, as_scalar
+from ._validation import TiltwellError, as_finite_array, as_integer, as_scalar
 from .acceptance import trap_acceptance
 from .coilarray import (
     CoilArray,
     _check_array,
-    _integer,
     on_axis_response,
     trap_currents,
 )
@@ -139,7 +138,7 @@ def moving_trap_phases(
         raise TiltwellError(f"array.count must be >= active + 1 = {array.active + 1} for a phase scan; got {array.count}")
     if not isinstance(species, Species):
         raise TiltwellError(f"species must be a Species; got {type(species).__name__}")
-    count = _integer(phases, "phases", 1)
+    count = as_integer(phases, "phases", 1)
     halves = as_finite_array(box_half_widths, "box_half_widths", "m", ndim=1)
     bore = array.radius - 0.5 * array.width
     if halves.shape != (3,) or np.any(halves <= 0.0) or np.any(halves[:2] >= bore):

@@ -28,7 +28,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ._display import html_table
-from ._validation import TiltwellError, as_finite_array, as_scalar
+from ._validation import TiltwellError, as_finite_array, as_integer, as_scalar
 from .fieldmap import FieldMap
 from .fields import IdealQuadrupole
 from .species import LinearZeeman
@@ -302,8 +302,8 @@ def track(
             raise TiltwellError(f"field_map must be a FieldMap or None; got {type(field_map).__name__}")
         if not field_map.covers(trap.bounds):
             raise TiltwellError(f"field_map must cover the trap bounds {trap.bounds} m; it covers {field_map.bounds} m")
-    size = _integer(chunk, "chunk")
-    every = _integer(record_every, "record_every")
+    size = as_integer(chunk, "chunk", 1)
+    every = as_integer(record_every, "record_every", 1)
     if not isinstance(progress, (bool, np.bool_)):
         raise TiltwellError(f"progress must be True or False; got {progress!r}")
     steps = math.ceil(total / largest * (1.0 - 1e-12))
@@ -433,12 +433,6 @@ class _Stepper:
             if bar is not None:
                 bar.update(1)
         final[index[alive]] = self.synchronised(rows[:, alive], acceleration[:, alive], moment)
-
-
-def _integer(value: Any, name: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
-        raise TiltwellError(f"{name} must be an integer >= 1; got {value!r}")
-    return int(value)
 
 
 def _profile(

@@ -19,7 +19,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy import optimize
 
-from ._validation import TiltwellError, as_bounds, as_points, as_scalar
+from ._validation import TiltwellError, as_bounds, as_integer, as_points, as_scalar
 from .fields import FieldSource
 from .species import Species
 
@@ -98,12 +98,12 @@ class Trap:
 
     def axis_cut(self, deceleration: float = 0.0, samples: int = 2001) -> tuple[FloatArray, FloatArray]:
         """Effective potential on the z axis: ``(z [m], U_eff [J])`` across the trap region."""
-        z = np.linspace(*self.bounds[2], _count(samples))
+        z = np.linspace(*self.bounds[2], as_integer(samples, "samples", 3))
         return z, self.effective_potential(0.0, 0.0, z, deceleration)
 
     def radial_cut(self, z: float, deceleration: float = 0.0, samples: int = 2001) -> tuple[FloatArray, FloatArray]:
         """Effective potential along x through ``(0, 0, z)``: ``(x [m], U_eff [J])``."""
-        x = np.linspace(*self.bounds[0], _count(samples))
+        x = np.linspace(*self.bounds[0], as_integer(samples, "samples", 3))
         return x, self.effective_potential(x, 0.0, as_scalar(z, "z", "m"), deceleration)
 
     def axial_slope(self, z: ArrayLike) -> FloatArray:
@@ -136,12 +136,6 @@ class Trap:
         )
         peak = max(float(-best.fun), float(slopes[k]))
         return peak / self.mass
-
-
-def _count(samples: int) -> int:
-    if isinstance(samples, bool) or not isinstance(samples, (int, np.integer)) or samples < 3:
-        raise TiltwellError(f"samples must be an integer >= 3; got {samples!r}")
-    return int(samples)
 
 
 def _stack(x: ArrayLike, y: ArrayLike, z: ArrayLike) -> tuple[FloatArray, tuple[int, ...]]:
