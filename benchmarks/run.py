@@ -12,6 +12,7 @@ import sys
 import time
 
 import bench_acceptance
+import bench_device
 import bench_explorer
 import bench_fields
 import bench_report
@@ -54,7 +55,7 @@ def main() -> None:
     rows += rows_1
     checks += checks_1
     rows += field_rows()
-    for module in (bench_acceptance, bench_tracking, bench_report, bench_explorer):
+    for module in (bench_acceptance, bench_tracking, bench_device, bench_report, bench_explorer):
         more_rows, more_checks = module.run()
         rows += more_rows
         checks += more_checks

@@ -217,6 +217,15 @@ def _check_array(array: object) -> None:
         raise TiltwellError(f"array must be a CoilArray; got {type(array).__name__}")
 
 
+def _check_on_row(array: CoilArray, z: FloatArray, name: str) -> None:
+    """Raise unless all trap positions ``z`` [m] lie between the first and the last coil."""
+    low, high = float(array.positions[0]), float(array.positions[-1])
+    if z.size and (z.min() < low or z.max() > high):
+        raise TiltwellError(
+            f"{name} [m] must lie in [{low:g}, {high:g}] (the coil row); got values in [{float(z.min())!r}, {float(z.max())!r}]"
+        )
+
+
 def _windows(array: CoilArray, z: FloatArray) -> NDArray[np.int64]:
     """Indices (M, active) of the ``active`` coils around each position: half on each side
     when possible, shifted inwards at the ends of the row."""
@@ -224,6 +233,33 @@ def _windows(array: CoilArray, z: FloatArray) -> NDArray[np.int64]:
     start = np.floor((z - array.first) / array.pitch).astype(np.int64) - half + 1
     start = np.clip(start, 0, array.count - array.active)
     return start[:, None] + np.arange(array.active)[None, :]
+
+
+def _local_currents(array: CoilArray, z: FloatArray, target: float
+                    ) -> tuple[NDArray[np.int64], FloatArray, FloatArray, NDArray[np.bool_]]:
+    """The active coils (M, active), their currents (M, active) [A], the achieved gradient
+    (M,) [T/m] and the limited flags (M,) at positions ``z`` (checked by the caller).
+
+    Only the active coils' on-axis response is evaluated, so memory grows as M x active,
+    not M x count (see :func:`trap_currents` for the solve)."""
+    window = _windows(array, z)  # (M, active)
+    radii, offsets, weights = Coil(array.radius, 0.0, 1.0, array.turns, array.width, array.height).loops()
+    planes = (array.first + array.pitch * window)[:, :, None] + offsets[None, None, :]  # (M, active, F)
+    d = z[:, None, None] - planes
+    a2 = radii**2
+    scale = 0.5 * VACUUM_PERMEABILITY * weights * a2
+    inverse = 1.0 / (a2 + d * d)
+    b = scale * inverse**1.5
+    db = -3.0 * d * b * inverse
+    system = np.stack((b.sum(axis=2), db.sum(axis=2)), axis=1)  # (M, 2, active)
+    local = np.linalg.pinv(system)[:, :, 1] * target  # (M, active): A^+ (0, G)
+    peak = np.max(np.abs(local), axis=1) if z.size else np.zeros(0)
+    limited = peak > array.max_current
+    with np.errstate(divide="ignore"):
+        scale_down = np.where(limited, array.max_current / np.where(limited, peak, 1.0), 1.0)
+    local = local * scale_down[:, None]
+    achieved = np.einsum("ma,ma->m", system[:, 1, :], local)
+    return window, local, achieved, limited
 
 
 def trap_currents(array: CoilArray, z_trap: ArrayLike, gradient: float) -> CurrentPlan:
@@ -251,25 +287,11 @@ def trap_currents(array: CoilArray, z_trap: ArrayLike, gradient: float) -> Curre
     """
     _check_array(array)
     z = as_finite_array(z_trap, "z_trap", "m", ndim=1)
-    low, high = float(array.positions[0]), float(array.positions[-1])
-    if z.size and (z.min() < low or z.max() > high):
-        raise TiltwellError(
-            f"z_trap [m] must lie in [{low:g}, {high:g}] (the coil row); got values in [{z.min()!r}, {z.max()!r}]"
-        )
+    _check_on_row(array, z, "z_trap")
     target = as_scalar(gradient, "gradient", "T/m", low=0.0, low_open=True)
-    window = _windows(array, z)  # (M, active)
-    b, db = on_axis_response(array, z)  # (N, M)
-    columns = np.arange(z.size)[:, None]
-    system = np.stack((b[window, columns], db[window, columns]), axis=1)  # (M, 2, active)
-    local = np.linalg.pinv(system)[:, :, 1] * target  # (M, active): A^+ (0, G)
-    peak = np.max(np.abs(local), axis=1) if z.size else np.zeros(0)
-    limited = peak > array.max_current
-    with np.errstate(divide="ignore"):
-        scale = np.where(limited, array.max_current / np.where(limited, peak, 1.0), 1.0)
-    local = local * scale[:, None]
+    window, local, achieved, limited = _local_currents(array, z, target)
     currents = np.zeros((z.size, array.count))
     np.put_along_axis(currents, window, local, axis=1)
-    achieved = np.einsum("ma,ma->m", system[:, 1, :], local)
     return CurrentPlan(z, currents, achieved, limited)
 
 
