@@ -3,8 +3,9 @@
 A moving trap is made by a row of equal coaxial coils at a fixed pitch. At each trap
 position the ``active`` coils nearest to it carry currents chosen so that on the axis
 ``B_z(z_trap) = 0`` and ``dB_z/dz(z_trap) = G`` (the wanted axial gradient), with the least
-sum of squared currents. Moving ``z_trap`` along a :class:`tiltwell.schedule.Schedule` gives
-the current waveforms of every coil.
+sum of squared currents, weighted so that each coil is handed over smoothly. Moving
+``z_trap`` along a :class:`tiltwell.schedule.Schedule` gives the current waveforms of every
+coil.
 
 - :class:`CoilArray`: the geometry and the per-coil current limit;
 - :func:`on_axis_response`: on-axis field and slope of every coil per ampere (closed form);
@@ -58,7 +59,12 @@ class CoilArray:
     max_current : float, default inf
         Peak current per turn allowed in any coil [A], > 0.
     active : int, default 4
-        How many coils nearest to the trap carry current at each position: even, >= 2.
+        How many coils nearest to the trap may carry current at each position: even, >= 2.
+    handover : float, default 0.5
+        Distance over which a coil entering or leaving the window of ``active`` coils is
+        weighted in or out, in pitches, in [0, active / 2]; 0 hands over abruptly (the
+        currents jump). Ignored for ``active = 2``, where two coils have no freedom. See
+        :func:`trap_currents`.
     """
 
     count: int
@@ -70,6 +76,7 @@ class CoilArray:
     height: float = 0.0
     max_current: float = math.inf
     active: int = 4
+    handover: float = 0.5
 
     def __post_init__(self) -> None:
         count = as_integer(self.count, "count", 2)
@@ -86,6 +93,7 @@ class CoilArray:
             "turns": as_integer(self.turns, "turns", 1),
             "max_current": limit,
             "active": active,
+            "handover": as_scalar(self.handover, "handover", "pitches", low=0.0, high=0.5 * active),
         }
         for name, value in checked.items():
             object.__setattr__(self, name, value)
@@ -235,6 +243,17 @@ def _windows(array: CoilArray, z: FloatArray) -> NDArray[np.int64]:
     return start[:, None] + np.arange(array.active)[None, :]
 
 
+def _taper(array: CoilArray, distance: FloatArray) -> FloatArray:
+    """Weight g(d) [1] of a window coil at ``distance`` d [m] from the trap:
+    sin^2(pi/2 min(1, (D - d) / w)) for d < D = (active / 2) pitch, else 0, with
+    w = handover pitch; all ones when w = 0 or active = 2."""
+    if array.active == 2 or array.handover == 0.0:
+        return np.ones_like(distance)
+    reach = 0.5 * array.active * array.pitch
+    ramp = np.clip((reach - distance) / (array.handover * array.pitch), 0.0, 1.0)
+    return np.sin(0.5 * np.pi * ramp) ** 2
+
+
 def _local_currents(array: CoilArray, z: FloatArray, target: float
                     ) -> tuple[NDArray[np.int64], FloatArray, FloatArray, NDArray[np.bool_]]:
     """The active coils (M, active), their currents (M, active) [A], the achieved gradient
@@ -243,16 +262,21 @@ def _local_currents(array: CoilArray, z: FloatArray, target: float
     Only the active coils' on-axis response is evaluated, so memory grows as M x active,
     not M x count (see :func:`trap_currents` for the solve)."""
     window = _windows(array, z)  # (M, active)
+    centres = array.first + array.pitch * window  # (M, active)
     radii, offsets, weights = Coil(array.radius, 0.0, 1.0, array.turns, array.width, array.height).loops()
-    planes = (array.first + array.pitch * window)[:, :, None] + offsets[None, None, :]  # (M, active, F)
-    d = z[:, None, None] - planes
+    d = z[:, None, None] - (centres[:, :, None] + offsets[None, None, :])  # (M, active, F)
     a2 = radii**2
     scale = 0.5 * VACUUM_PERMEABILITY * weights * a2
     inverse = 1.0 / (a2 + d * d)
     b = scale * inverse**1.5
     db = -3.0 * d * b * inverse
     system = np.stack((b.sum(axis=2), db.sum(axis=2)), axis=1)  # (M, 2, active)
-    local = np.linalg.pinv(system)[:, :, 1] * target  # (M, active): A^+ (0, G)
+    taper = _taper(array, np.abs(centres - z[:, None]))  # (M, active)
+    normal = np.einsum("mia,ma,mja->mij", system, taper, system)  # A G A^T, (M, 2, 2)
+    right = np.zeros((z.size, 2, 1))
+    right[:, 1, 0] = target
+    multipliers = np.linalg.solve(normal, right)[:, :, 0] if z.size else np.zeros((0, 2))
+    local = taper * np.einsum("mia,mi->ma", system, multipliers)  # G A^T (A G A^T)^-1 (0, G)
     peak = np.max(np.abs(local), axis=1) if z.size else np.zeros(0)
     limited = peak > array.max_current
     with np.errstate(divide="ignore"):
@@ -280,10 +304,20 @@ def trap_currents(array: CoilArray, z_trap: ArrayLike, gradient: float) -> Curre
     Notes
     -----
     With A (2 x active) the on-axis field and slope per ampere of the active coils
-    (:func:`on_axis_response`), the currents solve A I = (0, G) with the least ||I||^2:
-    I = A^+ (0, G), the Moore-Penrose pseudo-inverse (batched over positions). Where the
-    largest |I| exceeds ``max_current`` all currents there are scaled down to meet it:
-    the zero stays, the gradient falls by the same factor.
+    (:func:`on_axis_response`), the currents solve A I = (0, G) with the least weighted
+    norm sum_k I_k^2 / g_k: I = G A^T (A G A^T)^-1 (0, G) with G = diag(g) (Lagrange
+    multipliers; batched over positions). The weight g_k = 1 for coils well inside the
+    window; over the last ``handover`` pitches before the window's edge at
+    D = (active / 2) pitch from the trap it falls as sin^2(pi/2 (D - d_k) / w) to 0. A coil
+    is thus handed over smoothly: its current falls to zero as it leaves the window instead
+    of jumping, so the waveforms are continuous (a current step in a coil would need an
+    unbounded L dI/dt). ``handover = 0`` gives the plain minimum norm over the window, whose
+    currents jump where the window moves on; so do those of ``active = 2``. Continuity has
+    a price: for a row of 8 mm coils at a 5 mm pitch with four active, a half-pitch
+    hand-over gave a depth ripple of 0.06 against 0.03 for the abrupt one and an 8 % higher
+    peak current (measured in ``tests/test_coilarray.py``). Where the largest |I| exceeds
+    ``max_current`` all currents there are scaled down to meet it: the zero stays, the
+    gradient falls by the same factor.
     """
     _check_array(array)
     z = as_finite_array(z_trap, "z_trap", "m", ndim=1)

@@ -51,6 +51,11 @@ class PhaseScan:
         Acceptance areas [m·m/s] (0 where unbound).
     bound : ndarray of bool
         Whether the axis well exists.
+    volume : ndarray
+        Energetic 6-D acceptance [(m·m/s)^3] (0 where unbound); NaN where not computed.
+    escape_energy : ndarray
+        3-D escape energy of the tilted well [J], as in
+        :class:`tiltwell.acceptance.TrapAcceptance` (NaN where unbound).
     """
 
     phases: FloatArray
@@ -62,6 +67,8 @@ class PhaseScan:
     longitudinal: FloatArray
     transverse: FloatArray
     bound: NDArray[np.bool_]
+    volume: FloatArray
+    escape_energy: FloatArray
 
     @property
     def worst(self) -> int:
@@ -77,6 +84,16 @@ class PhaseScan:
     def mean_transverse(self) -> float:
         """Mean transverse acceptance over the phases [m·m/s]."""
         return float(np.mean(self.transverse))
+
+    @property
+    def mean_volume(self) -> float:
+        """Mean 6-D acceptance over the phases [(m·m/s)^3]; NaN when not computed."""
+        return float(np.mean(self.volume))
+
+    @property
+    def worst_volume(self) -> float:
+        """Smallest 6-D acceptance over the phases [(m·m/s)^3]; NaN when not computed."""
+        return float(np.min(self.volume))
 
     @property
     def ripple(self) -> float:
@@ -108,6 +125,8 @@ def moving_trap_phases(
     phases: int = 16,
     deceleration: float = 0.0,
     samples: int = 1001,
+    include_6d: bool = False,
+    rtol: float = 1e-2,
 ) -> PhaseScan:
     """Depth, field zero and acceptances of the trap at ``phases`` positions across one pitch.
 
@@ -125,9 +144,13 @@ def moving_trap_phases(
         Number of evenly spaced offsets p = k pitch / phases from the reference coil
         (coil (count - 1) // 2), >= 1.
     deceleration : float, default 0.0
-        [m/s^2], passed to :func:`tiltwell.trap_acceptance` (no 6-D volume).
+        [m/s^2], passed to :func:`tiltwell.trap_acceptance`.
     samples : int, default 1001
         Samples per cut for the acceptance.
+    include_6d : bool, default False
+        Also compute the energetic 6-D acceptance at each phase (about a second per phase).
+    rtol : float, default 1e-2
+        Relative accuracy of the 6-D acceptance.
 
     Returns
     -------
@@ -146,6 +169,8 @@ def moving_trap_phases(
             f"box_half_widths [m] must be three values > 0 with hx, hy < {bore:g} m (the bore); got {halves.tolist()!r}"
         )
     a = as_scalar(deceleration, "deceleration", "m/s^2")
+    if not isinstance(include_6d, (bool, np.bool_)):
+        raise TiltwellError(f"include_6d must be True or False; got {include_6d!r}")
     reference = float(array.positions[(array.count - 1) // 2])
     offsets = array.pitch * np.arange(count) / count
     plan = trap_currents(array, reference + offsets, gradient)
@@ -156,9 +181,11 @@ def moving_trap_phases(
         zero = _axis_zero(array, currents, z0)
         radial = float(source.magnitude(np.array([[step, 0.0, zero]]))[0] / step)
         bounds = ((-halves[0], halves[0]), (-halves[1], halves[1]), (z0 - halves[2], z0 + halves[2]))
-        result = trap_acceptance(Trap(source, species, bounds), a, include_6d=False, samples=samples)
+        result = trap_acceptance(Trap(source, species, bounds), a, include_6d=bool(include_6d), samples=samples,
+                                 rtol=rtol)
         rows.append((result.longitudinal.depth, zero - z0, radial, result.longitudinal.area, result.transverse.area,
-                     result.bound))
-    depth, offset, radial_gradient, longitudinal, transverse, bound = (np.array(column) for column in zip(*rows))
+                     result.bound, result.volume, result.escape_energy))
+    depth, offset, radial_gradient, longitudinal, transverse, bound, volume, escape = (
+        np.array(column) for column in zip(*rows))
     return PhaseScan(offsets, plan.positions, depth, offset, plan.gradient, radial_gradient, longitudinal,
-                     transverse, bound.astype(bool))
+                     transverse, bound.astype(bool), volume.astype(float), escape.astype(float))
