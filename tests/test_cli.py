@@ -155,3 +155,64 @@ def test_run_writes_the_coil_timing_table(tmp_path) -> None:  # type: ignore[no-
     positions, times = rows[:, 0], rows[:, 1]
     assert np.allclose(v0 * times - 0.5 * a * times**2, positions, rtol=1e-9, atol=1e-12)
     assert "electrical-safety" in out.read_text()
+
+
+def test_coils_text_summary_carries_the_caution(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:  # type: ignore[no-untyped-def]
+    """The readable summary of `tiltwell coils` (numbers checked in tests/test_coilreport.py)."""
+    from tiltwell import scenario as sc
+    from tiltwell.cli import DEMO_SCENARIO
+
+    path = sc.save(sc.load(DEMO_SCENARIO).replace("coils", phases=2), tmp_path / "plan.toml")
+    out = tmp_path / "waveforms.csv"
+    assert main(["coils", str(path), "--csv", str(out)]) == 0
+    text = capsys.readouterr().out
+    for phrase in ("132 coils at 12 mm pitch", "mK", "mm*m/s", "mH", "kV", "I^2 t", "CAUTION", "electrical-safety",
+                   "coil k at z = -36 mm + k x 12 mm", f"wrote {out}"):
+        assert phrase in text
+    assert "electrical-safety" in out.read_text()
+
+
+def _coils_cli(*argv: str) -> subprocess.CompletedProcess[str]:
+    return subprocess.run([sys.executable, "-m", "tiltwell.cli", "coils", *argv], capture_output=True, text=True,
+                          check=False)
+
+
+@pytest.mark.parametrize(
+    ("edit", "word"),
+    [
+        (("pitch = 0.012 ", ""), "[deceleration] pitch"),
+        (("turns = 200", "turns = -200"), "[coils] turns"),
+        (("width = 0.006", "width = 0.02"), "radius - width/2"),
+        (("plan_step = 2.0e-6", "plan_step = 1e-11"), "[coils] plan_step"),
+    ],
+    ids=["no-pitch", "negative-turns", "bore-too-small", "table-too-long"],
+)
+def test_coils_errors_are_one_line_and_leave_the_csv_alone(tmp_path, edit: tuple[str, str], word: str) -> None:  # type: ignore[no-untyped-def]
+    from tiltwell.cli import DEMO_SCENARIO
+
+    text = DEMO_SCENARIO.read_text()
+    assert edit[0] in text
+    text = text.replace(edit[0], edit[1], 1)
+    if word == "[deceleration] pitch":
+        text = text.replace("peak_current = 400.0", "")
+    path = tmp_path / "bad.toml"
+    path.write_text(text)
+    old = tmp_path / "old.csv"
+    old.write_text("kept\n")
+    completed = _coils_cli(str(path), "--csv", str(old), "--json")
+    assert completed.returncode == 2
+    assert "Traceback" not in completed.stderr and len(completed.stderr.strip().splitlines()) == 1
+    assert word in completed.stderr
+    assert completed.stdout == "" and old.read_text() == "kept\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.toml", "old.csv"]
+
+
+def test_coils_needs_the_section_and_an_existing_folder(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    path = _scenario_file(tmp_path, particles=100)
+    text = path.read_text()
+    path.write_text(text[: text.index("[coils]")])
+    completed = _coils_cli(str(path))
+    assert completed.returncode == 2 and "no [coils] section" in completed.stderr
+    missing = tmp_path / "absent" / "w.csv"
+    completed = _coils_cli(str(_scenario_file(tmp_path, particles=100).with_name("plan.toml")), "--csv", str(missing))
+    assert completed.returncode == 2 and "existing folder" in completed.stderr and not missing.exists()

@@ -94,3 +94,75 @@ def test_describe_lists_every_key_with_its_unit() -> None:
     text = sc.describe()
     for line in ("[beam]", "temperature [K]", "gradient [T/m]", "final_velocity [m/s]", "particles"):
         assert line in text
+
+
+# ---- the optional [coils] section ----------------------------------------------------------
+
+
+def _with_coils(**changes: object) -> dict[str, dict[str, object]]:
+    data = sc.load(DEMO).to_dict()
+    for key, value in changes.items():
+        if value is None:
+            del data["coils"][key]
+        else:
+            data["coils"][key] = value
+    return data
+
+
+@pytest.mark.parametrize(
+    ("changes", "words"),
+    [
+        ({"radius": -0.019}, ["[coils] radius", "[m]", "(0, 1]", "-0.019"]),
+        ({"turns": 0}, ["[coils] turns", "[1, 100000]", "0"]),
+        ({"turns": 2.5}, ["[coils] turns", "integer", "2.5"]),
+        ({"width": 0.0}, ["[coils] width", "[m]", "(0, 1]"]),
+        ({"height": 2.0}, ["[coils] height", "[m]", "(0, 1]", "2.0"]),
+        ({"fill_factor": 1.5}, ["[coils] fill_factor", "(0, 1]", "1.5"]),
+        ({"max_current": -400.0}, ["[coils] max_current", "[A]", "(0, 1e+06]"]),
+        ({"active": 3}, ["[coils] active", "even", "3"]),
+        ({"active": 0}, ["[coils] active", "[2, 1000]"]),
+        ({"gradient": 0.0}, ["[coils] gradient", "[T/m]", "(0, 100000]"]),
+        ({"plan_step": "fast"}, ["[coils] plan_step", "[s]", "fast"]),
+        ({"phases": 0}, ["[coils] phases", "[1, 1000]"]),
+        ({"turn": 200, "turns": None}, ["unknown key", "[coils] turn", "did you mean 'turns'"]),
+        ({"radius": None}, ["[coils] radius is required"]),
+        ({"height": 0.013}, ["[coils] height [m]", "[deceleration] pitch = 0.012", "0.013"]),
+    ],
+    ids=["radius", "turns-zero", "turns-float", "width", "height-range", "fill_factor", "max_current", "active-odd",
+         "active-zero", "gradient", "plan_step-type", "phases", "misspelt", "missing", "taller-than-pitch"],
+)
+def test_coils_errors_name_the_key(changes: dict[str, object], words: list[str]) -> None:
+    with pytest.raises(TiltwellError) as caught:
+        sc.from_dict(_with_coils(**changes))
+    for word in words:
+        assert word in str(caught.value)
+
+
+def test_coils_need_the_pitch() -> None:
+    data = _with_coils()
+    del data["deceleration"]["pitch"], data["deceleration"]["peak_current"]
+    with pytest.raises(TiltwellError, match=r"\[coils\] needs the coil pitch: give \[deceleration\] pitch \[m\]"):
+        sc.from_dict(data)
+    data["coil"] = data.pop("coils")
+    with pytest.raises(TiltwellError, match=r"did you mean '\[coils\]'"):
+        sc.from_dict(data)
+
+
+def test_coils_round_trip_and_stay_optional(tmp_path: Path) -> None:
+    scenario = sc.load(DEMO)
+    assert scenario.coils is not None and scenario.coils.turns == 200 and scenario.coils.gradient is None
+    changed = scenario.replace("coils", gradient=200.0, max_current=None, phases=5)
+    assert sc.load(sc.save(changed, tmp_path / "c.toml")) == changed
+    assert changed.coils is not None and changed.coils.max_current is None and changed.coils.phases == 5
+    bare = sc.from_dict({name: keys for name, keys in scenario.to_dict().items() if name != "coils"})
+    assert bare.coils is None and "coils" not in bare.to_dict()
+    assert sc.loads(sc.dumps(bare)) == bare
+    again = bare.replace("coils", **scenario.to_dict()["coils"])
+    assert again == scenario
+
+
+def test_describe_lists_the_coils_keys() -> None:
+    text = sc.describe()
+    assert "[coils] (optional section)" in text and "ceil(length / pitch) + active + 1 coils" in text
+    for line in ("radius [m] in (0, 1]", "plan_step [s] in (0, 1] (default 2e-06)", "max_current [A]", "phases"):
+        assert line in text.split("[coils]")[1]

@@ -19,7 +19,7 @@ from .beam import Beam
 from .capture import CaptureEstimates, capture_estimates
 from .fields import FieldSource, IdealQuadrupole, anti_helmholtz
 from .hardware import ELECTRICAL_CAUTION
-from .scenario import Scenario
+from .scenario import Scenario, box_half_widths
 from .schedule import CoilTiming, Schedule, coil_timing, constant_deceleration
 from .source import Aperture, Source, gas
 from .species import LinearZeeman, Species, species
@@ -107,13 +107,7 @@ def _field_source(scenario: Scenario) -> FieldSource:
 
 
 def _bounds(scenario: Scenario) -> tuple[tuple[float, float], ...]:
-    t = scenario.trap
-    if t.half_widths is not None:
-        hx, hy, hz = t.half_widths
-    else:  # an ideal quadrupole: twice the truncation surface in each direction
-        assert t.gradient is not None and t.max_field is not None
-        edge = t.max_field / t.gradient
-        hx, hy, hz = 4 * edge, 4 * edge, 2 * edge
+    hx, hy, hz = box_half_widths(scenario.trap)  # a quadrupole's default: twice its truncation surface
     return ((-hx, hx), (-hy, hy), (-hz, hz))
 
 

@@ -1,13 +1,14 @@
 """Scenario files: a whole planning case in one TOML file, validated on load.
 
-Five sections, every key with its unit and allowed range (``tiltwell.scenario.describe()``
-prints them all):
+Five sections and an optional sixth, every key with its unit and allowed range
+(``tiltwell.scenario.describe()`` prints them all):
 
 ``[species]`` the particle; ``[trap]`` the trap (an ideal quadrupole of finite depth, or an
 anti-Helmholtz coil pair) and its box; ``[beam]`` the source and flight path;
 ``[deceleration]`` the target final velocity and the deceleration or length, optionally the
 coil-array pitch and current pulse for the timing table; ``[simulation]`` sample size,
-seed and numerics.
+seed and numerics; optionally ``[coils]``, the real coil row of the decelerator (winding,
+current limit, number of active coils, waveform table step), used by ``tiltwell coils``.
 
 Loading checks everything and reports the first problem naming the section, key, unit,
 allowed range and the value found; an unknown key is an error that suggests the close
@@ -34,11 +35,13 @@ from ._validation import TiltwellError
 
 __all__ = [
     "BeamSection",
+    "CoilsSection",
     "DecelerationSection",
     "Scenario",
     "SimulationSection",
     "SpeciesSection",
     "TrapSection",
+    "box_half_widths",
     "describe",
     "load",
     "loads",
@@ -121,13 +124,44 @@ class SimulationSection:
                                            0.0, 100.0, open_low=True)
 
 
+@dataclass(frozen=True)
+class CoilsSection:
+    """The coil row: coaxial coils at [deceleration] pitch from z = -(active/2) pitch to at
+    least length + (active/2) pitch, so ceil(length / pitch) + active + 1 coils."""
+
+    radius: float = _key("m", "mean winding radius of each coil", 0.0, 1.0, open_low=True)
+    turns: int = _key("", "turns per coil", 1, 1e5)
+    width: float = _key("m", "radial extent of a winding (the bore, radius - width/2, must clear the trap box)",
+                        0.0, 1.0, open_low=True)
+    height: float = _key("m", "axial extent of a winding (at most the pitch)", 0.0, 1.0, open_low=True)
+    fill_factor: float = _key("", "copper fraction of the winding cross-section (round wire, square packing: "
+                              "at most pi/4)", 0.0, 1.0, default=0.6, open_low=True)
+    max_current: float | None = _key("A", "largest current per turn (default: [deceleration] peak_current)",
+                                     0.0, 1e6, open_low=True)
+    active: int = _key("", "coils carrying current at once, even", 2, 1000, default=4)
+    handover: float = _key("pitches", "distance over which a coil is weighted into or out of the active window, "
+                           "at most active/2 (0: abrupt, the currents jump)", 0.0, 500.0, default=0.5)
+    gradient: float | None = _key("T/m", "wanted axial gradient at the zero (default: the [trap] quadrupole "
+                                  "gradient; required for other traps)", 0.0, 1e5, open_low=True)
+    plan_step: float = _key("s", "time between the points of the current waveform table", 0.0, 1.0,
+                            default=2e-6, open_low=True)
+    phases: int = _key("", "trap positions across one pitch in the phase scan", 1, 1000, default=16)
+
+
 _SECTIONS: dict[str, type] = {
     "species": SpeciesSection,
     "trap": TrapSection,
     "beam": BeamSection,
     "deceleration": DecelerationSection,
     "simulation": SimulationSection,
+    "coils": CoilsSection,
 }
+
+#: Sections that may be left out, and what they default to.
+_OPTIONAL: dict[str, Any] = {"simulation": {}, "coils": None}
+
+#: What :func:`describe` says about a section besides its keys.
+_NOTES: dict[str, str] = {"coils": " ".join(str(CoilsSection.__doc__).split())}
 
 
 @dataclass(frozen=True)
@@ -139,12 +173,15 @@ class Scenario:
     beam: BeamSection
     deceleration: DecelerationSection
     simulation: SimulationSection = SimulationSection()
+    coils: CoilsSection | None = None
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
         """Plain nested dict of the given values (None omitted), as written to TOML."""
         out: dict[str, dict[str, Any]] = {}
         for name in _SECTIONS:
             section = getattr(self, name)
+            if section is None:
+                continue
             values = {}
             for item in dataclasses.fields(section):
                 value = getattr(section, item.name)
@@ -159,8 +196,9 @@ class Scenario:
         """A copy with keys of one section changed (None removes a key), validated like a
         loaded file."""
         data = self.to_dict()
-        if section not in data:
+        if section not in _SECTIONS:
             raise _unknown("section", f"[{section}]", [f"[{known}]" for known in _SECTIONS])
+        data.setdefault(section, {})
         for key, value in changes.items():
             if value is None:
                 data[section].pop(key, None)
@@ -222,8 +260,11 @@ def from_dict(data: Mapping[str, Any]) -> Scenario:
             raise _unknown("section", f"[{name}]", [f"[{known}]" for known in _SECTIONS])
     sections: dict[str, Any] = {}
     for name, cls in _SECTIONS.items():
-        raw = data.get(name, {} if name == "simulation" else None)
+        raw = data.get(name, _OPTIONAL.get(name))
         if raw is None:
+            if name in _OPTIONAL:
+                sections[name] = None
+                continue
             raise TiltwellError(f"missing section [{name}]")
         if not isinstance(raw, Mapping):
             raise TiltwellError(f"[{name}] must be a table; got {raw!r}")
@@ -265,6 +306,37 @@ def _check_together(s: Scenario) -> None:
     _exactly_one("deceleration", "deceleration", "length", s.deceleration.deceleration, s.deceleration.length)
     if (s.deceleration.pitch is None) != (s.deceleration.peak_current is None):
         raise TiltwellError("[deceleration] give both pitch [m] and peak_current [A] for the timing table, or neither")
+    if s.coils is not None:
+        _check_coils(s)
+
+
+def box_half_widths(trap: TrapSection) -> tuple[float, float, float]:
+    """Half widths (hx, hy, hz) [m] of the trap box: ``half_widths`` when given, else (for
+    an ideal quadrupole) 4, 4 and 2 times max_field / gradient, twice the truncation surface."""
+    if trap.half_widths is not None:
+        hx, hy, hz = trap.half_widths
+        return hx, hy, hz
+    assert trap.gradient is not None and trap.max_field is not None
+    edge = trap.max_field / trap.gradient
+    return 4 * edge, 4 * edge, 2 * edge
+
+
+def _check_coils(s: Scenario) -> None:
+    """The [coils] rules that need other sections."""
+    c, pitch = s.coils, s.deceleration.pitch
+    assert c is not None
+    if pitch is None:
+        raise TiltwellError("[coils] needs the coil pitch: give [deceleration] pitch [m] (and peak_current [A])")
+    if c.active % 2:
+        raise TiltwellError(f"[coils] active must be an even integer in [2, 1000]; got {c.active!r}")
+    if c.gradient is None and s.trap.kind != "quadrupole":
+        raise TiltwellError(f"[coils] gradient [T/m] is required when [trap] kind = \"{s.trap.kind}\"")
+    if c.height > pitch:
+        raise TiltwellError(f"[coils] height [m] must be at most [deceleration] pitch = {pitch:g} m "
+                            f"(neighbouring windings would overlap); got {c.height!r}")
+    # The bore against the trap box is checked where the coils are used
+    # (tiltwell.coilreport.coil_array): a quadrupole's default box follows its gradient, which
+    # the explorer varies without touching [coils].
 
 
 def loads(text: str) -> Scenario:
@@ -302,7 +374,9 @@ def describe() -> str:
     """Every section and key with unit, allowed range and meaning."""
     lines = []
     for name, cls in _SECTIONS.items():
-        lines.append(f"[{name}]")
+        lines.append(f"[{name}]" + (" (optional section)" if name in _OPTIONAL else ""))
+        if name in _NOTES:
+            lines.append(f"  {_NOTES[name]}")
         for item in dataclasses.fields(cls):
             meta = item.metadata
             unit = f" [{meta['unit']}]" if meta["unit"] else ""
