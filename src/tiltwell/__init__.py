@@ -20,6 +20,7 @@ from .beam import Beam, PhasePlane
 from .capture import CaptureEstimates, capture_estimates
 from .coilarray import CoilArray, CurrentPlan, trap_currents, waveforms
 from .device import CoilFieldMap, UniformMotion, track_device
+from .devicecompare import DeviceComparison, PhaseAveragedField, compare_device
 from .energetic import EnergeticAcceptance, acceptance_6d, energetic_acceptance
 from .fields import CoilSet, Coil, IdealQuadrupole, anti_helmholtz, loop_field
 from .hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
@@ -59,6 +60,7 @@ __all__ = [
     "CoilSet",
     "CoilTiming",
     "CurrentPlan",
+    "DeviceComparison",
     "ELECTRICAL_CAUTION",
     "EnergeticAcceptance",
     "Explorer",
@@ -67,6 +69,7 @@ __all__ = [
     "HardwareEstimate",
     "IdealQuadrupole",
     "LinearZeeman",
+    "PhaseAveragedField",
     "PhasePlane",
     "PhaseScan",
     "Scenario",
@@ -88,6 +91,7 @@ __all__ = [
     "capture_estimates",
     "catalogue",
     "coil_timing",
+    "compare_device",
     "constant_deceleration",
     "energetic_acceptance",
     "energetic_fraction",

@@ -42,6 +42,7 @@ from ._figure_style import (
     _styled,
     save,
 )
+from ._figures_device import current_pulses, device_arrivals, device_phase_space, device_survival, phase_scan
 from ._validation import TiltwellError, as_finite_array, as_scalar
 from .acceptance import AcceptanceCurve, longitudinal_acceptance
 from .beam import PhasePlane
@@ -55,7 +56,8 @@ from .tracking import TrackingResult
 from .traps import Trap
 
 __all__ = ["PALETTE", "acceptance_curve", "arrival_times", "phase_plane", "potential", "save", "scenario_figures",
-           "survival", "tradeoff"]
+           "survival", "tradeoff",
+           "current_pulses", "device_arrivals", "device_phase_space", "device_survival", "phase_scan"]
 
 #: Particles drawn in a scenario's phase planes (the first ones of the random sample).
 DRAWN_PARTICLES = 3000
