@@ -15,12 +15,17 @@ jupyter_bokeh sends to the browser (the browser's own drawing is not included).
   (with the critical deceleration, which the explorer shows beside the slider).
 - 20 moves of the deceleration slider on an invented coil-pair trap (the explorer keeps the
   trap's samples between moves; the reference samples the field again at every call).
+- 20 moves of the coil-array part's radius slider on the demo (section open, background
+  rescan off): the redraw of the currents, readouts and out-of-date marks, against
+  ``tiltwell.coilarray.waveforms`` called directly for the same coils and times; the check
+  line also times one phase scan (``moving_trap_phases``, run in the background in use).
 
 Run standalone (``python benchmarks/bench_explorer.py``) or call :func:`run`.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import statistics
 import time
 from collections.abc import Callable
@@ -30,11 +35,13 @@ import numpy as np
 
 import tiltwell
 from tiltwell import scenario as scenario_io
+from tiltwell.coilarray import waveforms
 from tiltwell.explorer import explore
 from tiltwell.report import build
 
 MOVES = 30
 COIL_MOVES = 20
+COIL_PART_MOVES = 20
 SPECIES = ("Rb-87", "NH", "CaF", "Na-23", "O2", "Cr", "Li-7", "K-39")
 TARGET_S = 0.05
 #: Bound for every species of SPECIES in the demo's 250 T/m quadrupole (Rb-87's critical
@@ -152,12 +159,44 @@ def species_row(app: Any) -> tuple[dict[str, object], list[str]]:
     return _row(case, statistics.median(ours), statistics.median(theirs)), [check]
 
 
+def coil_part_row(app: Any) -> tuple[dict[str, object], list[str]]:
+    from tiltwell._explorer_coilmodel import current_array, current_window
+
+    part = app.coil_array
+    part.auto_scan = False
+    part.open()
+    radius = part.controls["radius"]
+    values = radius.value * np.linspace(0.9, 1.3, COIL_PART_MOVES + 1)
+    radius.value = float(values[0])  # warm-up
+    schedule = build(app.scenario()).schedule
+
+    def move(r: float) -> Callable[[], object]:
+        return lambda: setattr(radius, "value", r)
+
+    def direct(r: float) -> Callable[[], object]:
+        def call() -> object:
+            settings = dataclasses.replace(part.settings(), radius=r * 1e-3)
+            return waveforms(current_array(settings), schedule, settings.gradient, current_window(settings, schedule))
+        return call
+
+    ours = _times([move(float(r)) for r in values[1:]])
+    theirs = _times([direct(float(r)) for r in values[1:]])
+    start = time.perf_counter()
+    part.scan(wait=True)
+    scan_s = time.perf_counter() - start
+    check = (f"coil part: peak current after the last move {part.state['peak_current']:.6g} A; slowest move "
+             f"{max(ours) * 1e3:.1f} ms; one phase scan {scan_s:.2f} s (background); errors caught: {len(app.errors)}")
+    case = f"explorer: coil part, median of {COIL_PART_MOVES} radius-slider moves (ref: waveforms)"
+    return _row(case, statistics.median(ours), statistics.median(theirs)), [check]
+
+
 def run() -> tuple[list[dict[str, object]], list[str]]:
-    """Three table rows and the check lines printed under the table."""
+    """Four table rows and the check lines printed under the table."""
     rows, checks = [], []
     demo = explore(auto_tradeoff=False)
     try:
-        for make in (lambda: slider_row(demo, MOVES, "demo quadrupole"), lambda: species_row(demo)):
+        for make in (lambda: slider_row(demo, MOVES, "demo quadrupole"), lambda: species_row(demo),
+                     lambda: coil_part_row(demo)):
             row, lines = make()
             rows.append(row)
             checks.extend(lines)

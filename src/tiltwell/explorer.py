@@ -38,6 +38,8 @@ from jupyter_bokeh import BokehModel
 
 from . import _explorer_readouts as readouts
 from . import _explorer_views as views
+from ._explorer_coilmodel import default_settings as default_coils
+from ._explorer_coils import CoilPart
 from ._explorer_model import VIEW_PARTICLES, Model, Picture, Settings, tradeoff
 from ._explorer_tasks import Tasks
 from ._explorer_widgets import (
@@ -98,6 +100,8 @@ class Explorer:
         Outcome of the last action.
     errors : list of Exception
         Unexpected errors caught in callbacks (a bug if not empty); also logged.
+    coil_array : tiltwell._explorer_coils.CoilPart
+        The coil-array part (a closed section under the buttons; it computes only while open).
     """
 
     def __init__(self, scenario: Scenario | str | os.PathLike[str] | None = None, *,
@@ -130,6 +134,8 @@ class Explorer:
         self._deceleration_box = widgets.Box([self.controls["deceleration"]])
         self.widget = make_layout(self.controls, self.actions, self.readouts, self._views, self.message,
                                   self.status, self._deceleration_box)
+        self.coil_array = CoilPart(default_coils(self._model), self._lock, self._unexpected)
+        self.widget.children = (*self.widget.children[:-1], self.coil_array.section, self.widget.children[-1])
         for name, control in self.controls.items():
             if name == "log_scale":
                 control.observe(self._on_log_scale, names="value")
@@ -173,6 +179,7 @@ class Explorer:
         with self._lock:
             for view, figure in zip(self._views.values(), self.figures.values()):
                 view.update_from_model(figure)
+            self.coil_array.fresh()
         return self.widget
 
     # --- settings -----------------------------------------------------------------------------
@@ -289,6 +296,7 @@ class Explorer:
                 for readout in self.readouts.values():
                     readout.value = "—"
                 self.message.value = readouts.warning(html.escape(str(error)))
+                self.coil_array.follow(None)
                 return
             same = self._picture is not None and self._picture.settings == settings
             heavy = {key: self.state[key] for key in readouts.HEAVY if key in self.state} if same else {}
@@ -299,6 +307,7 @@ class Explorer:
             self.message.value = readouts.warning("<br>".join(html.escape(t) for t in readouts.problems(picture)))
             if settings.tradeoff_key != self._tradeoff_shown:
                 self._schedule_tradeoff(settings)
+            self.coil_array.follow(picture)
 
     def _show_readouts(self) -> None:
         for key, text in readouts.texts(self.state).items():
@@ -417,12 +426,14 @@ class Explorer:
     def wait(self, timeout: float | None = None) -> None:
         """Start a pending trade-off update at once and wait for all background work."""
         self._tasks.flush(timeout)
+        self.coil_array.wait(timeout)
 
     def close(self) -> None:
         """Stop background work (waiting for a running task to end) and close the page.
         The Bokeh views close themselves when collected (closing one twice fails in
         jupyter_bokeh 4.1)."""
         self._tasks.shutdown()
+        self.coil_array.close()
         self.widget.close()
 
     # --- files --------------------------------------------------------------------------------

@@ -1,0 +1,399 @@
+"""The explorer's coil-array part, without a browser: controls set in code, then the Bokeh
+sources, readouts and state compared with the library called directly
+(:func:`tiltwell.coilarray.waveforms`, :func:`tiltwell.moving.moving_trap_phases`,
+:func:`tiltwell.trap_acceptance`) at the settings the controls describe, and the drawn
+currents checked against the textbook on-axis loop field and constant-deceleration
+kinematics written here."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+import scipy.constants as sc
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from scipy import optimize
+
+import tiltwell as tw
+from tiltwell import scenario as scenario_io
+from tiltwell._explorer_coils import TITLE, CoilPart
+from tiltwell.coilarray import CoilArray, waveforms
+from tiltwell.explorer import DEMO, Explorer, explore
+from tiltwell.hardware import ELECTRICAL_CAUTION
+from tiltwell.moving import moving_trap_phases
+from tiltwell.report import build
+
+MU0 = sc.mu_0  # CODATA vacuum permeability (scipy.constants)
+
+# invented thin coil pair (no real experiment): no [deceleration] pitch or peak_current
+PAIR = """
+[species]
+name = "Rb-87"
+[trap]
+kind = "coils"
+radius = 0.01
+separation = 0.012
+current = 400.0
+turns = 50
+half_widths = [0.004, 0.004, 0.01]
+[beam]
+gas = "Xe"
+temperature = 300.0
+relative_spread = 0.05
+valve_open_time = 2.0e-5
+nozzle_diameter = 5.0e-4
+nozzle_skimmer_distance = 0.1
+skimmer_diameter = 2.0e-3
+flight_distance = 0.3
+[deceleration]
+final_velocity = 10.0
+deceleration = 5000.0
+"""
+
+
+def mk(energy: Any) -> np.ndarray:
+    """J -> mK with CODATA's Boltzmann constant (scipy.constants), independent of tiltwell."""
+    return np.asarray(energy) / sc.k * 1e3
+
+
+def loop_bz(current_turns: np.ndarray, radius: float, planes: np.ndarray, z: float) -> float:
+    """On-axis B_z [T] of thin loops: B_z = mu0 I a^2 / (2 (a^2 + d^2)^(3/2)), d = z - z_loop
+    (Jackson, Classical Electrodynamics, 3rd ed., sect. 5.5; from memory), summed."""
+    d = z - planes
+    return float(np.sum(MU0 * current_turns * radius**2 / (2.0 * (radius**2 + d**2) ** 1.5)))
+
+
+def loop_slope(current_turns: np.ndarray, radius: float, planes: np.ndarray, z: float) -> float:
+    """d/dz of :func:`loop_bz`: -3 mu0 I a^2 d / (2 (a^2 + d^2)^(5/2)) (differentiated by hand)."""
+    d = z - planes
+    return float(np.sum(-3.0 * MU0 * current_turns * radius**2 * d / (2.0 * (radius**2 + d**2) ** 2.5)))
+
+
+@pytest.fixture(scope="module")
+def shared() -> Iterator[Explorer]:
+    app = explore(auto_tradeoff=False)
+    app.coil_array.auto_scan = False  # scans only when a test asks
+    app.coil_array.open()
+    yield app
+    app.close()
+
+
+@pytest.fixture
+def app(shared: Explorer) -> Explorer:
+    shared.reset()
+    shared.coil_array.reset()
+    assert shared.errors == []
+    return shared
+
+
+def part_of(app: Explorer) -> CoilPart:
+    return app.coil_array
+
+
+def row(part: CoilPart, count: int) -> CoilArray:
+    """A coil row built here from the controls (mm -> m): coil k at (k + 1/2) pitch, thin windings."""
+    c = part.controls
+    pitch = c["pitch"].value * 1e-3
+    return CoilArray(count=count, pitch=pitch, radius=c["radius"].value * 1e-3, first=0.5 * pitch,
+                     turns=c["turns"].value, max_current=c["max_current"].value, active=c["active"].value)
+
+
+def drawn_currents(part: CoilPart) -> tuple[np.ndarray, list[int], np.ndarray, np.ndarray]:
+    """Times [s], coil indices, coil positions [m] and currents [A] (coils, times) drawn."""
+    data = part.sources["currents"].data
+    times = np.asarray(data["xs"][0]) * 1e-6
+    for xs in data["xs"]:
+        np.testing.assert_array_equal(xs, data["xs"][0])
+    return times, list(data["coil"]), np.asarray(data["position"]) * 1e-3, np.array([np.asarray(y) for y in data["ys"]])
+
+
+def test_the_part_is_a_closed_section_that_computes_only_when_open() -> None:
+    app = explore(auto_tradeoff=False)
+    try:
+        part = app.coil_array
+        assert app.widget.children[-2] is part.section  # above the electrical caution at the foot
+        assert part.section.titles == (TITLE,) and part.section.selected_index is None
+        assert "tiltwell-coils" in part.widget._dom_classes
+        app.controls["deceleration"].value = 0.3 * app.state["critical_deceleration"]
+        assert all(len(column) == 0 for source in part.sources.values() for column in source.data.values())
+        part.open()
+        # the demo's [coils] has 6 active coils: 8 coils carry current while the trap crosses 2 pitches
+        assert len(part.sources["currents"].data["xs"]) == 8
+        assert len(part.sources["depth_reference"].data["phase"]) == 2
+        # the serialised view holds the data drawn after it was made (Explorer._fresh_widget re-serialises it)
+        app._repr_mimebundle_()
+        assert part.figures["currents"].title.text in str(part._views["currents"].render_bundle["docs_json"])
+        assert app.errors == []
+    finally:
+        app.close()
+
+
+def test_defaults_follow_the_scenario_and_reach_the_gradient(app: Explorer) -> None:
+    part = part_of(app)
+    d = part.defaults
+    loaded = scenario_io.load(DEMO)
+    assert d.pitch == loaded.deceleration.pitch
+    assert loaded.coils is not None  # the demo's [coils] section gives the coil row
+    assert (d.radius, d.turns, d.active, d.max_current) == (loaded.coils.radius, loaded.coils.turns,
+                                                             loaded.coils.active, loaded.coils.max_current)
+    # closed form: on the axis of an ideal quadrupole |B| = B' |z| (DESIGN.md), so |B|(h) / h is the gradient
+    assert d.gradient == pytest.approx(250.0, rel=1e-12)  # measured: exact
+    (_, hx), (_, hy), _ = build(app.scenario()).trap.bounds
+    assert d.radius > math.hypot(hx, hy)  # the box's corner lies inside the bore: 19 mm > 18.1 mm
+    assert part.state["limited"] == 0.0
+    assert part.state["peak_current"] <= d.max_current  # measured 382.4 A of 400 A (thin windings here)
+    assert part.readouts["limit"].value.startswith("no: the peak is 96 % of the limit")
+    assert part.message.value == ""
+
+
+def test_defaults_without_a_pitch_are_invented_and_follow_a_coil_pair(tmp_path: Path) -> None:
+    path = tmp_path / "pair.toml"
+    path.write_text(PAIR, encoding="utf-8")
+    app = explore(path, auto_tradeoff=False)
+    try:
+        d = app.coil_array.defaults
+        assert (d.pitch, d.max_current, d.active) == (0.012, 500.0, 4)
+        # anti-Helmholtz gradient at the centre: d/dz of the two on-axis loop fields (loop_slope above, Jackson
+        # 5.5) at z = 0 is 3 mu0 N I a^2 s / (a^2 + s^2)^(5/2), s = separation / 2
+        a, s = 0.01, 0.006
+        assert d.gradient == pytest.approx(3 * MU0 * 50 * 400.0 * a**2 * s / (a**2 + s**2) ** 2.5, rel=1e-8)  # 1.1e-10
+        assert d.radius == 0.008  # 1.25 x the 5.66 mm box corner, rounded up to a millimetre
+        app.coil_array.open()
+        assert app.coil_array.state["limited"] == 0.0 and app.coil_array.message.value == ""
+        assert app.errors == []
+    finally:
+        app.close()
+
+
+CURRENT_CASES = {
+    "defaults": {},
+    "six active, 8 mm pitch": {"active": 6, "pitch": 8.0},
+    "limit bites": {"turns": 30},
+    "two active, wide bore": {"active": 2, "radius": 40.0, "gradient": 400.0},
+}
+
+
+@pytest.mark.parametrize("values", CURRENT_CASES.values(), ids=CURRENT_CASES.keys())
+def test_currents_equal_waveforms_on_a_long_row(app: Explorer, values: dict[str, float]) -> None:
+    part = part_of(app)
+    part.update(**values)
+    times, coils, positions, currents = drawn_currents(part)
+    scenario = app.scenario()
+    schedule = build(scenario).schedule
+    long_row = row(part, 40)  # the device's row, longer than the part's: the currents do not change
+    plan = waveforms(long_row, schedule, part.controls["gradient"].value, times)
+    used = np.flatnonzero(np.any(plan.currents != 0.0, axis=0))
+    assert coils == used.tolist()
+    assert len(coils) == part.controls["active"].value + 2  # the coils carrying current over two pitches
+    np.testing.assert_allclose(currents, plan.currents[:, used].T, rtol=1e-12, atol=0.0)
+    np.testing.assert_allclose(positions, long_row.positions[used], rtol=1e-12)
+    # the window: the trap from (h + 1) to (h + 3) pitches, h = active / 2, times from z = v0 t - a t^2 / 2 solved
+    # by hand, t = (v0 - sqrt(v0^2 - 2 a z)) / a
+    v0, a = build(scenario).beam.velocity + scenario.beam.mismatch, scenario.deceleration.deceleration
+    assert a is not None
+    h, pitch = part.controls["active"].value // 2, part.controls["pitch"].value * 1e-3
+    ends = [(v0 - math.sqrt(v0**2 - 2 * a * k * pitch)) / a for k in (h + 1, h + 3)]
+    np.testing.assert_allclose(times[[0, -1]], ends, rtol=1e-9)
+    assert part.state["peak_current"] == np.max(np.abs(currents))
+    assert part.readouts["peak_current"].value.startswith(f"{part.state['peak_current']:.4g} A")
+    assert part.state["limited"] == float(np.any(plan.limited))
+    assert part._spans["limit_high"].location == part.controls["max_current"].value
+    assert app.errors == []
+
+
+@pytest.mark.parametrize("values", [{}, {"turns": 30}, {"active": 6, "pitch": 8.0}], ids=["free", "limited", "six"])
+def test_the_drawn_currents_carry_the_field_zero_with_the_schedule(app: Explorer, values: dict[str, float]) -> None:
+    part = part_of(app)
+    part.update(**values)
+    times, _, positions, currents = drawn_currents(part)
+    scenario = app.scenario()
+    v0, a = build(scenario).beam.velocity + scenario.beam.mismatch, scenario.deceleration.deceleration
+    assert a is not None
+    radius, turns, pitch = part.controls["radius"].value * 1e-3, part.controls["turns"].value, \
+        part.controls["pitch"].value * 1e-3
+    wanted, slopes = part.controls["gradient"].value, []
+    for j in range(0, times.size, 10):
+        amperes = turns * currents[:, j]
+        z_trap = v0 * times[j] - 0.5 * a * times[j] ** 2  # constant-deceleration kinematics, written here
+        zero = optimize.brentq(lambda z, i=amperes: loop_bz(i, radius, positions, z), z_trap - 0.5 * pitch,
+                               z_trap + 0.5 * pitch, xtol=1e-15)
+        assert zero == pytest.approx(z_trap, abs=1e-12)  # measured within 1.6e-16 m
+        slopes.append(loop_slope(amperes, radius, positions, zero))
+    if part.state["limited"]:
+        # turns = 30 cannot reach 250 T/m under 400 A: the limit scales the currents and the gradient down
+        assert min(slopes) < 0.5 * wanted  # 24.3 T/m
+        assert min(slopes) >= part.state["lowest_gradient"] * (1 - 1e-9)
+        assert part.readouts["limit"].value.startswith("yes: the gradient falls to")
+    else:
+        np.testing.assert_allclose(slopes, wanted, rtol=1e-12)  # measured within 4.4e-16
+
+
+@pytest.mark.parametrize(("main", "species_name"), [({}, "OH"), ({"species": "NH", "fraction": 0.3}, "NH")],
+                         ids=["demo", "NH at 0.3 critical"])
+def test_phase_scan_equals_moving_trap_phases(app: Explorer, main: dict[str, Any], species_name: str) -> None:
+    if main:
+        app.update(species=main["species"])
+        app.update(deceleration=main["fraction"] * app.state["critical_deceleration"])
+    part = part_of(app)
+    assert part.readouts["worst"].value == "— (press “scan the phases now”)"
+    result = part.scan(wait=True)
+    assert result is not None and "finished" in part.status.value
+    scenario = app.scenario()
+    built = build(scenario)
+    a = scenario.deceleration.deceleration
+    assert a is not None and built.trap.species.name == species_name
+    halves = tuple(high for _, high in built.trap.bounds)
+    reference = moving_trap_phases(row(part, part.controls["active"].value + 1), part.controls["gradient"].value,
+                                   tw.species(species_name), box_half_widths=halves, phases=12, deceleration=a,
+                                   samples=501)
+    data, accept = part.sources["depth"].data, part.sources["acceptance"].data
+    np.testing.assert_allclose(data["phase"], np.arange(12) / 12, rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(data["depth"], mk(reference.depth), rtol=1e-12)
+    np.testing.assert_allclose(data["offset"], reference.zero_offset * 1e6, rtol=1e-12, atol=0.0)
+    np.testing.assert_allclose(accept["longitudinal"], reference.longitudinal * 1e3, rtol=1e-12)
+    np.testing.assert_allclose(accept["transverse"], reference.transverse * 1e3, rtol=1e-12)
+    worst = int(np.argmin(reference.longitudinal))
+    assert part.sources["acceptance_worst"].data["phase"] == [pytest.approx(worst / 12, rel=1e-12)]
+    assert part.sources["depth_worst"].data["depth"] == [pytest.approx(mk(reference.depth[worst]), rel=1e-12)]
+    # the rigid trap of the main explorer at the same deceleration, for reference
+    rigid = tw.trap_acceptance(built.trap, a, include_6d=False)
+    assert part.sources["depth_reference"].data["depth"] == [pytest.approx(mk(rigid.longitudinal.depth), rel=1e-12)] * 2
+    assert part.sources["acceptance_reference"].data["transverse"] == [rigid.transverse.area * 1e3] * 2
+    s = part.state
+    assert s["worst_longitudinal"] == reference.longitudinal[worst]
+    assert s["mean_transverse"] == pytest.approx(np.mean(reference.transverse), rel=1e-12)
+    # ripple: peak-to-peak over mean of the depth, computed here
+    assert s["ripple"] == pytest.approx(np.ptp(reference.depth) / np.mean(reference.depth), rel=1e-12)
+    assert s["max_zero_offset"] < 1e-12  # the currents put the zero at the trap (measured 2.4e-16 m)
+    assert part.readouts["mean"].value == (f"{np.mean(reference.longitudinal) * 1e3:.4g} / "
+                                           f"{np.mean(reference.transverse) * 1e3:.4g} mm·m/s")
+    assert part.readouts["zero_offset"].value.endswith(" µm")
+    assert part.figures["depth"].title.text == "well depth between two coils"
+    assert app.errors == []
+
+
+def test_a_stale_phase_scan_is_discarded(app: Explorer) -> None:
+    part = part_of(app)
+    before = dict(part.sources["acceptance"].data)
+    future = part.scan(wait=False)
+    part.controls["turns"].value = part.controls["turns"].value + 20  # moves on while the scan runs (~0.5 s)
+    assert future.result(timeout=120) is not None
+    assert "discarded" in part.status.value
+    assert math.isnan(part.state["mean_longitudinal"])
+    assert dict(part.sources["acceptance"].data) == before
+    assert part.readouts["mean"].value == "— (press “scan the phases now”)"
+    assert app.errors == []
+
+
+def test_a_main_setting_change_also_makes_a_scan_stale(app: Explorer) -> None:
+    part = part_of(app)
+    future = part.scan(wait=False)
+    app.controls["deceleration"].value = 0.2 * app.state["critical_deceleration"]
+    future.result(timeout=120)
+    assert "discarded" in part.status.value
+    assert math.isnan(part.state["worst_longitudinal"])
+
+
+def test_rescans_by_itself_after_a_change(app: Explorer) -> None:
+    part = part_of(app)
+    part.auto_scan = True
+    try:
+        part.update(gradient=300.0)
+        assert part.readouts["worst"].value == "— (scanning…)"
+        part.wait(timeout=120)
+        assert part.state["mean_longitudinal"] == pytest.approx(
+            np.mean(part.sources["acceptance"].data["longitudinal"]) * 1e-3, rel=1e-12)
+        assert part.state["mean_longitudinal"] > 0.0
+        assert "finished" in part.status.value
+    finally:
+        part.auto_scan = False
+    assert app.errors == []
+
+
+EXTREMES = {
+    "bore inside the box": ({"radius": "min"}, ["bore", "18.1 mm"]),
+    "widest pitch, smallest bore": ({"pitch": "max", "radius": "min"}, ["bore"]),
+    "odd active count": ({"active": 3}, ["active coils must be an even number", "3"]),
+    "few turns, low limit, steep gradient": ({"turns": "min", "max_current": "min", "gradient": "max"}, []),
+    "most coils, finest pitch, widest bore": ({"active": "max", "pitch": "min", "radius": "max"}, []),
+}
+
+
+@pytest.mark.parametrize(("values", "words"), EXTREMES.values(), ids=EXTREMES.keys())
+def test_extreme_settings_give_a_message_not_an_exception(app: Explorer, values: dict[str, Any],
+                                                          words: list[str]) -> None:
+    part = part_of(app)
+    chosen = {name: getattr(part.controls[name], value) if isinstance(value, str) else value
+              for name, value in values.items()}
+    part.update(**chosen)
+    for word in words:
+        assert word in part.message.value
+    if words:
+        part.actions["scan"].click()  # the button says why there is no scan, in the message
+        assert words[0] in part.message.value
+    else:
+        assert part.message.value == ""
+        assert len(part.sources["currents"].data["xs"]) == part.controls["active"].value + 2
+    if "turns" in values:
+        assert part.readouts["limit"].value.startswith("yes")
+    for source in part.sources.values():
+        assert len({len(column) for column in source.data.values()}) == 1
+    assert app.errors == []
+
+
+def test_a_short_device_or_no_schedule_blanks_the_currents_with_a_message(app: Explorer) -> None:
+    part = part_of(app)
+    app.update(final_velocity=380.0)  # 385.8 -> 380 m/s: a few cm of device
+    assert "fewer than the active + 3 = 9" in part.message.value
+    assert len(part.sources["currents"].data["xs"]) == 0
+    assert math.isnan(part.state["peak_current"]) and part.readouts["peak_current"].value == "—"
+    app.update(final_velocity=20.0, deceleration=0.0)
+    assert "no schedule" in part.message.value
+    assert len(part.sources["currents"].data["xs"]) == 0
+    assert part.scan(wait=True) is not None  # the phase scan needs no schedule (a = 0 here)
+    assert app.errors == []
+
+
+def test_above_the_critical_deceleration_the_scan_says_there_is_no_well(app: Explorer) -> None:
+    app.update(deceleration=1.5 * app.state["critical_deceleration"])
+    part = part_of(app)
+    part.update(radius=19.0, gradient=125.0)  # 1.5 x the rigid trap's critical 9.9e4 m/s^2 also tilts these wells away
+    result = part.scan(wait=True)
+    assert result is not None and not np.any(result.bound)
+    assert part.readouts["ripple"].value == "— (no well at 12 of 12 phases)"
+    assert part.state["worst_longitudinal"] == 0.0
+    assert app.errors == []
+
+
+FLOATS = ("pitch", "radius", "max_current", "gradient")
+coil_values = st.fixed_dictionaries({
+    **{name: st.floats(0.0, 1.0) for name in FLOATS},  # where in the slider's range
+    "turns": st.integers(1, 800), "active": st.sampled_from([2, 4, 6, 8, 10, 12]),  # turns: the slider spans 1 to 4 x the demo's 200
+})
+
+
+@settings(max_examples=30, deadline=None, database=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(values=coil_values)
+def test_any_coil_setting_draws_or_says_why(app: Explorer, values: dict[str, Any]) -> None:
+    part = part_of(app)
+    c = part.controls
+    values |= {name: min(c[name].min + values[name] * (c[name].max - c[name].min), c[name].max) for name in FLOATS}
+    part.update(**values)
+    assert app.errors == []
+    drawn = len(part.sources["currents"].data["xs"]) > 0
+    assert drawn == (part.message.value == "" or "bore" in part.message.value)
+    if drawn:
+        assert part.state["peak_current"] <= values["max_current"] * (1 + 1e-12)
+
+
+def test_currents_come_with_the_electrical_caution(app: Explorer) -> None:
+    part = part_of(app)
+    texts = [child.value for child in part.widget.children[-1].children[0].children if hasattr(child, "value")]
+    assert any(ELECTRICAL_CAUTION in text for text in texts)
+    below = [str(getattr(item, "text", "")) for item in part.figures["currents"].below]
+    assert any("ELECTRICAL_CAUTION" in text for text in below)
