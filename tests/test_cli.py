@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import contextlib
+import io
 import json
 import subprocess
 import sys
 
+import numpy as np
 import pytest
 from scipy import constants
 
@@ -216,3 +219,47 @@ def test_coils_needs_the_section_and_an_existing_folder(tmp_path) -> None:  # ty
     missing = tmp_path / "absent" / "w.csv"
     completed = _coils_cli(str(_scenario_file(tmp_path, particles=100).with_name("plan.toml")), "--csv", str(missing))
     assert completed.returncode == 2 and "existing folder" in completed.stderr and not missing.exists()
+
+
+def test_coils_track_writes_the_device_check_and_its_figures(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    # The numbers' physics is checked in tests/test_devicecompare.py and tests/test_device.py;
+    # here: the command wires the scenario's beam into compare_device, the box shrinks to the
+    # bore as documented (closed form: scale 0.99 x 16 mm / hypot(12.8, 12.8) mm for the demo),
+    # and the figures are written.
+    import tiltwell as tw
+    from tiltwell import scenario as sc
+    from tiltwell.cli import DEMO_SCENARIO
+    from tiltwell.coilreport import coil_run, device_box
+
+    demo = sc.load(DEMO_SCENARIO).replace("coils", phases=2).replace("simulation", detector_distance=0.2)
+    path = sc.save(demo, tmp_path / "plan.toml")
+    stream = io.StringIO()
+    with contextlib.redirect_stdout(stream):
+        assert main(["coils", str(path), "--json", "--track", "300", "--figures", str(tmp_path / "figs")]) == 0
+    numbers = json.loads(stream.getvalue())["device_check"]
+    assert numbers["particles"] == 300
+    assert numbers["ripple_loss"] == pytest.approx(numbers["kept_rigid_twin"] - numbers["kept_coil_row"], abs=1e-15)
+    scale = 0.99 * 0.016 / np.hypot(0.0128, 0.0128)
+    np.testing.assert_allclose(numbers["box_half_widths"], [0.0128 * scale, 0.0128 * scale, 0.0064], rtol=1e-12)
+    # the same run by hand: the beam sampled as the captured fraction samples it, then compare_device
+    built = tw.build(demo)
+    run = coil_run(demo, built.schedule)
+    sample = built.beam.sample(300, seed=demo.simulation.seed)
+    sample[:, 5] -= built.mismatch
+    direct = tw.compare_device(run.array, built.species, sample, schedule=built.schedule, gradient=run.gradient,
+                               time_step=numbers["time_step"], box_half_widths=device_box(demo, run.array),
+                               plan_times=run.times, phases=2)
+    assert (direct.rigid.fraction, direct.device.fraction) == (numbers["kept_rigid_twin"], numbers["kept_coil_row"])
+    rigid, device = direct.arrival_times(0.2)
+    assert numbers["arrival_median_coil_row"] == pytest.approx(float(np.median(device)), rel=1e-12)
+    names = ["coil-currents", "coil-phases", "device-survival", "device-phase-space", "device-arrivals"]
+    for name in names:
+        assert (tmp_path / "figs" / f"{name}.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_coils_track_needs_a_positive_count(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:  # type: ignore[no-untyped-def]
+    from tiltwell.cli import DEMO_SCENARIO
+
+    assert main(["coils", str(DEMO_SCENARIO), "--track", "0"]) == 2
+    assert "--track" in capsys.readouterr().err
+

@@ -365,14 +365,15 @@ def test_save_rejects_a_negative_width(small: Figure, tmp_path: Path) -> None:
 
 # --- whole scenario, and the command line ---------------------------------------------------
 
-NAMES = ["potential", "phase-longitudinal", "phase-transverse", "acceptance", "tradeoff", "survival"]
+NAMES = ["potential", "phase-longitudinal", "phase-transverse", "acceptance", "tradeoff", "coil-currents",
+         "coil-phases", "survival"]
 
 
 def demo_scenario(**simulation: Any) -> scenario.Scenario:
     """The shipped demo with a coarse 6-D tolerance (rtol 0.3): these tests check which
     files are written, and the seven 6-D acceptances of a scenario's figures (one for the
     estimates, six for the trade-off sweep) dominate their run time at the demo's 1e-2."""
-    return scenario.load(DEMO_SCENARIO).replace("simulation", rtol=0.3, **simulation)
+    return scenario.load(DEMO_SCENARIO).replace("simulation", rtol=0.3, **simulation).replace("coils", phases=3)
 
 
 def test_scenario_figures_writes_every_figure(tmp_path: Path) -> None:

@@ -104,8 +104,9 @@ def phase_scan(scan: PhaseScan, *, ax: Axes | None = None) -> Figure:
     """Depth [mK] (left axis) and acceptances [mm·m/s] (right axis) against phase / pitch.
 
     Gids: ``depth``, ``acceptance-longitudinal``, ``acceptance-transverse``, their phase
-    averages ``mean-depth``, ``mean-longitudinal``, ``mean-transverse``, and the phase of
-    the smallest longitudinal acceptance ``worst-phase``. The phases of a scan are
+    averages ``mean-depth``, ``mean-longitudinal``, ``mean-transverse`` (thin lines, one
+    legend entry, so the legend fits small figures), and the phase of the smallest
+    longitudinal acceptance ``worst-phase``. The phases of a scan are
     k pitch / P, so the pitch is P times the second phase (a single phase is drawn at 0).
     """
     if not isinstance(scan, PhaseScan):
@@ -117,15 +118,14 @@ def phase_scan(scan: PhaseScan, *, ax: Axes | None = None) -> Figure:
     depth = millikelvin(scan.depth)
     ax.plot(x, depth, color=_C["ink"], marker="o", ms=3.5, label="depth", gid="depth")
     ax.axhline(float(np.mean(depth)), color=_C["ink"], lw=0.7, ls=(0, (1, 2)),
-               label=f"mean depth {np.mean(depth):.3g} mK", gid="mean-depth")
+               label="phase averages (thin lines)", gid="mean-depth")
     for values, mean, colour, style, marker, name, label in (
         (scan.longitudinal, scan.mean_longitudinal, "blue", "-", "s", "longitudinal", "longitudinal (z, $v_z$)"),
         (scan.transverse, scan.mean_transverse, "rose", "--", "D", "transverse", "transverse (x, $v_x$)"),
     ):
         right.plot(x, values * 1e3, color=_C[colour], ls=style, marker=marker, ms=3.5, label=label,
                    gid=f"acceptance-{name}")
-        right.axhline(mean * 1e3, color=_C[colour], lw=0.7, ls=(0, (4, 2)),
-                      label=f"mean {name} {mean * 1e3:.3g} mm·m/s", gid=f"mean-{name}")
+        right.axhline(mean * 1e3, color=_C[colour], lw=0.7, ls=(0, (4, 2)), label="_nolegend_", gid=f"mean-{name}")
     worst = scan.worst
     ax.axvline(float(x[worst]), color=_C["amber"], lw=1.0, ls=":", label=f"worst phase {x[worst]:.3g}",
                gid="worst-phase")
@@ -137,7 +137,8 @@ def phase_scan(scan: PhaseScan, *, ax: Axes | None = None) -> Figure:
     ax.set_title(f"the trap across one pitch (depth ripple {scan.ripple:.3g})")
     handles, labels = ax.get_legend_handles_labels()
     more, more_labels = right.get_legend_handles_labels()
-    ax.legend(handles + more, labels + more_labels, loc="lower left", ncols=2)
+    legend = ax.legend(handles + more, labels + more_labels, loc="lower left", ncols=2, fontsize="small")
+    legend.set_in_layout(False)  # inside the axes: it must not shrink them (small figures collapse otherwise)
     return figure
 
 

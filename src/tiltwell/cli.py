@@ -7,8 +7,9 @@ figures; ``tiltwell keys`` lists every scenario key with unit and range;
 ``tiltwell species [NAME]`` lists the catalogue or shows one species;
 ``tiltwell quadrupole SPECIES --gradient G --max-field B --deceleration A [--json]``
 gives the acceptance of an ideal quadrupole trap of finite depth, a first estimate;
-``tiltwell coils FILE [--json] [--csv FILE]`` sizes the scenario's coil row (``[coils]``)
-and writes its current waveform table.
+``tiltwell coils FILE [--json] [--csv FILE] [--track N] [--figures DIR]`` sizes the
+scenario's coil row (``[coils]``), writes its current waveform table, tracks N particles of
+the beam through the row and through its rigid twin, and draws it.
 Errors print one line and exit with status 2, never a traceback.
 """
 
@@ -157,72 +158,6 @@ def _run(path: str, as_json: bool, progress: bool, timing_path: str | None) -> N
         _print_run(summary)
 
 
-def _print_coils(summary: dict[str, object]) -> None:
-    def number(key: str) -> float:
-        return _number(summary, key)
-
-    def line(label: str, text: str) -> None:
-        print(f"  {label:26s} {text}")
-
-    print(f"coil row: {int(number('count'))} coils at {number('pitch') * 1e3:.4g} mm pitch, z = "
-          f"{number('first') * 1e3:.4g} to {number('last') * 1e3:.5g} mm, {int(number('active'))} carrying current")
-    line("gradient", f"{number('gradient'):.4g} T/m wanted; {number('achieved_gradient_min'):.4g} T/m at least, "
-         f"{number('achieved_gradient_mean'):.4g} T/m on average")
-    line("peak current", f"{number('peak_current'):.4g} A per turn; the limit cut the gradient at "
-         f"{number('limited_fraction') * 100:.3g} % of the points")
-    print(f"  trap across one pitch ({int(number('phases'))} positions, decelerating at "
-          f"{number('phase_deceleration'):.4g} m/s^2)")
-    line("  depth", f"worst {millikelvin(number('depth_worst')):.4g} mK, mean {millikelvin(number('depth_mean')):.4g} "
-         f"mK, ripple {number('ripple') * 100:.3g} %")
-    for kind in ("longitudinal", "transverse"):
-        line(f"  {kind} acceptance", f"worst {number(kind + '_acceptance_worst') * 1e3:.4g}, mean "
-             f"{number(kind + '_acceptance_mean') * 1e3:.4g} mm*m/s")
-    line("  field zero off target", f"{number('zero_offset_max') * 1e6:.3g} um at most")
-    line("waveform table", f"{int(number('plan_points'))} points every {number('plan_step') * 1e6:.4g} us over "
-         f"{number('duration') * 1e3:.4g} ms")
-    print("  one coil (hardware estimates; copper at 20 C, no cooling during a pulse)")
-    line("  pulse", f"{number('pulse_duration_min') * 1e3:.3g} to {number('pulse_duration_max') * 1e3:.3g} ms")
-    line("  inductance", f"{number('inductance') * 1e3:.4g} mH (self only: the coupled neighbours add to the "
-         "voltages)")
-    line("  resistance", f"{number('resistance'):.4g} Ohm")
-    line("  L dI/dt", f"{number('inductive_voltage') / 1e3:.4g} kV at the steepest slope "
-         f"{number('max_slope'):.3g} A/s")
-    step = number('handover_step')
-    if step == 0.0:
-        line("  hand-over", "smooth: each coil's current is weighted in and out ([coils] handover), no jump")
-    elif summary.get("handover_voltage") is not None:
-        line("  hand-over step", f"{step:.4g} A; L dI/dt {number('handover_voltage') / 1e3:.4g} kV over the "
-             f"{number('rise_time') * 1e6:.3g} us rise time")
-    else:
-        line("  hand-over step", f"{step:.4g} A (a jump: give [deceleration] rise_time for its L dI/dt)")
-    line("  I^2 t (hottest coil)", f"{number('current_squared_time'):.4g} A^2 s: +{number('temperature_rise'):.3g} K "
-         f"(bound at peak current: +{number('temperature_rise_bound'):.3g} K)")
-    line("  stored energy", f"{number('stored_energy'):.4g} J at the peak current")
-    print(f"  {summary['caution']}")
-
-
-def _coils(path: str, as_json: bool, csv_path: str | None) -> None:
-    from .coilreport import coil_run, coil_summary
-
-    scenario = scenario_module.load(path)
-    if csv_path is not None and not Path(csv_path).parent.is_dir():
-        raise TiltwellError(f"--csv must name a file in an existing folder; got {csv_path!r}")
-    try:
-        run = coil_run(scenario)
-        summary = coil_summary(scenario, run)
-    except TiltwellError as error:
-        raise TiltwellError(f"{path}: {error}") from None
-    if csv_path is not None:
-        run.plan.to_csv(csv_path, run.times)
-    if as_json:
-        print(json.dumps(summary))
-        return
-    _print_coils(summary)
-    if csv_path is not None:
-        print(f"wrote {csv_path}: current per turn of each coil against time, coil k at z = "
-              f"{_number(summary, 'first') * 1e3:.4g} mm + k x {_number(summary, 'pitch') * 1e3:.4g} mm")
-
-
 def _sweep(arguments: argparse.Namespace) -> None:
     scenario = scenario_module.load(arguments.file)
     values = np.linspace(arguments.start, arguments.stop, arguments.points)
@@ -302,6 +237,10 @@ def _parser() -> argparse.ArgumentParser:
     row.add_argument("file")
     row.add_argument("--json", action="store_true", help="print one JSON object (SI units)")
     row.add_argument("--csv", metavar="FILE", help="write the current waveform of every coil (with cautions)")
+    row.add_argument("--track", type=int, metavar="N", help="track N particles of the beam through the coil row "
+                     "and through its rigid twin (slow: minutes for 1e5)")
+    row.add_argument("--figures", metavar="DIR", help="write the coil figures (PNG) to this folder")
+    row.add_argument("--progress", action="store_true", help="progress bars while tracking")
     return parser
 
 
@@ -322,7 +261,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         elif arguments.command == "species":
             _print_species(arguments.name)
         elif arguments.command == "coils":
-            _coils(arguments.file, arguments.json, arguments.csv)
+            from ._cli_coils import coils_command  # the coil-row modules load only for this command
+
+            coils_command(arguments)
         else:
             summary = quadrupole_summary(
                 arguments.species, arguments.gradient, arguments.max_field, arguments.deceleration

@@ -19,8 +19,11 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from ._validation import TiltwellError
+from ._validation import TiltwellError, as_integer
+from .acceptance import trap_acceptance
+from .capture import default_time_step
 from .coilarray import CoilArray, CurrentPlan, trap_currents, waveforms
+from .devicecompare import DeviceComparison, compare_device
 from .hardware import (
     COPPER_DENSITY,
     COPPER_RESISTIVITY,
@@ -33,7 +36,7 @@ from .report import build
 from .scenario import CoilsSection, Scenario, box_half_widths
 from .schedule import MAX_COILS, Schedule
 
-__all__ = ["CoilRun", "MAX_TABLE_VALUES", "UNITS", "coil_array", "coil_run", "coil_summary"]
+__all__ = ["CoilRun", "MAX_TABLE_VALUES", "UNITS", "coil_array", "coil_run", "coil_scan", "coil_summary", "device_box", "device_check"]
 
 FloatArray = NDArray[np.float64]
 
@@ -261,6 +264,15 @@ def _scan_numbers(scan: PhaseScan) -> dict[str, Any]:
     }
 
 
+def coil_scan(scenario: Scenario, run: CoilRun) -> PhaseScan:
+    """The row's trap at ``[coils] phases`` positions across one pitch, decelerating as the
+    scenario does (:func:`tiltwell.moving_trap_phases`; ``[simulation] samples`` per cut)."""
+    species = build(scenario).species
+    return moving_trap_phases(run.array, run.gradient, species, box_half_widths=box_half_widths(scenario.trap),
+                              phases=_section(scenario).phases, deceleration=run.schedule.deceleration,
+                              samples=scenario.simulation.samples)
+
+
 def coil_summary(scenario: Scenario, run: CoilRun | None = None) -> dict[str, Any]:
     """All numbers of the scenario's coil row as a JSON-ready dict (SI) with a ``units`` map
     and the ``caution``.
@@ -304,12 +316,8 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None) -> dict[str, An
         raise TiltwellError(f"[coils] width x height [m^2] must be smaller than pi radius^2 for the inductance "
                             f"estimate; got {coils.width!r} x {coils.height!r} with radius {coils.radius!r}")
     run = coil_run(scenario) if run is None else run
-    built = build(scenario)
     array, plan = run.array, run.plan
-    hx, hy, hz = box_half_widths(scenario.trap)
-    scan = moving_trap_phases(array, run.gradient, built.species, box_half_widths=(hx, hy, hz),
-                              phases=coils.phases, deceleration=run.schedule.deceleration,
-                              samples=scenario.simulation.samples)
+    scan = coil_scan(scenario, run)
     durations, action = _pulses(run)
     slope, step = _slope(run), _handover_step(run)
     peak = float(np.abs(plan.currents).max())
@@ -358,3 +366,41 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None) -> dict[str, An
             summary[key] = None
     summary["units"] = {key: UNITS[key] for key in summary if key in UNITS}
     return summary
+
+
+def device_check(scenario: Scenario, particles: int | None = None, *, progress: bool = False) -> DeviceComparison:
+    """The scenario's beam through its coil row and through the row's rigid twin.
+
+    ``particles`` (default ``[simulation] particles``) are drawn from the beam at switch-on
+    with ``[simulation] seed``, in the trap frame as for the captured fraction, and tracked
+    from switch-on to the end of the deceleration by :func:`tiltwell.compare_device`: the
+    device run follows the currents planned every ``[coils] plan_step`` (the waveform
+    table) and interpolated linearly between, as a pulse generator would play them. Time
+    step: ``[simulation] time_step``, else the rigid trap's default
+    (:func:`tiltwell.capture.default_time_step`). Both runs lose particles at the walls of
+    :func:`device_box`.
+    """
+    coils = _section(scenario)
+    built = build(scenario)
+    run = coil_run(scenario, built.schedule)
+    count = scenario.simulation.particles if particles is None else as_integer(particles, "particles", 1)
+    step = scenario.simulation.time_step
+    if step is None:
+        acceptance = trap_acceptance(built.trap, built.schedule.deceleration, include_6d=False)
+        step = default_time_step(acceptance, built.species.mass)
+    sample = built.beam.sample(count, seed=scenario.simulation.seed)
+    sample[:, 5] -= built.mismatch
+    return compare_device(run.array, built.species, sample, schedule=built.schedule, gradient=run.gradient,
+                          time_step=min(step, built.schedule.duration), box_half_widths=device_box(scenario, run.array),
+                          plan_times=run.times, phases=coils.phases, progress=progress)
+
+
+def device_box(scenario: Scenario, array: CoilArray) -> tuple[float, float, float]:
+    """Half widths (hx, hy, hz) [m] of the trap box, with hx and hy scaled down together
+    where needed so the box's corner stays inside 0.99 of the bore (radius - width / 2):
+    the coil field is tabulated only inside the bore, and a particle beyond it would be in
+    the winding."""
+    hx, hy, hz = box_half_widths(scenario.trap)
+    room = 0.99 * (array.radius - 0.5 * array.width)
+    scale = min(1.0, room / math.hypot(hx, hy))
+    return (hx * scale, hy * scale, hz)

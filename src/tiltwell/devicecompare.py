@@ -308,6 +308,7 @@ def compare_device(
     average: str = "magnitude",
     field_map_shape: tuple[int, int, int] = (41, 41, 41),
     record_every: int = 1,
+    progress: bool = False,
 ) -> DeviceComparison:
     """Track the same particles through the rigid twin and through the coil array.
 
@@ -341,6 +342,8 @@ def compare_device(
         Grid of the rigid run's :class:`~tiltwell.tracking.FieldMap` over the box.
     record_every : int, default 1
         Steps between recorded survival values, >= 1 (the end is always recorded).
+    progress : bool, default False
+        Progress bars (tqdm) for both runs.
 
     Returns
     -------
@@ -387,12 +390,12 @@ def compare_device(
     trap = Trap(reference, species, tuple((-h, h) for h in halves.tolist()))
     field_map = FieldMap.from_trap(trap, field_map_shape)
     rigid = track(trap, state, total, time_step, deceleration=_deceleration(schedule, total),
-                  field_map=field_map, record_every=every)
+                  field_map=field_map, record_every=every, progress=progress)
 
     start = np.array([0.0, 0.0, float(schedule.position(0.0)), 0.0, 0.0, float(schedule.velocity(0.0))])
     device = track_device(array, plan_times, species, state + start, schedule=schedule, gradient=reference.gradient,
                           time_step=time_step, duration=total, box_half_widths=(halves[0], halves[1], halves[2]),
-                          record_every=every)
+                          record_every=every, progress=progress)
     return DeviceComparison(rigid, device, schedule)
 
 

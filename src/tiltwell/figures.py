@@ -46,10 +46,11 @@ from ._figures_device import current_pulses, device_arrivals, device_phase_space
 from ._validation import TiltwellError, as_finite_array, as_scalar
 from .acceptance import AcceptanceCurve, longitudinal_acceptance
 from .beam import PhasePlane
+from .coilarray import CurrentPlan
 from .constants import millikelvin
 from .report import build, estimate
 from .scenario import Scenario
-from .schedule import arrival_histogram
+from .schedule import Schedule, arrival_histogram
 from .separatrix import Separatrix
 from .sweep import sweep
 from .tracking import TrackingResult
@@ -333,7 +334,10 @@ def scenario_figures(scenario: Scenario, out: str | os.PathLike[str], *, formats
     tracking), ``acceptance`` (0 to 1.1 x the critical deceleration), ``tradeoff`` (a
     sweep at :data:`SWEEP_FRACTIONS` of the critical deceleration, trajectories off),
     ``survival`` (when the scenario tracks) and ``time-of-flight`` (when it also sets
-    ``detector_distance``), each in every one of ``formats``.
+    ``detector_distance``), and with a ``[coils]`` section ``coil-currents`` (a window of
+    coils while the trap crosses its first three pitches, where it is fastest) and
+    ``coil-phases`` (depth and acceptances across one pitch), each in every one of
+    ``formats``.
 
     ``particles`` replaces the scenario's ``[simulation] particles``; ``formats``,
     ``width``, ``height`` [in] and ``dpi`` are as for :func:`save`. Returns the written
@@ -382,6 +386,8 @@ def _scenario_drawings(scenario: Scenario) -> dict[str, Figure]:
         figures["acceptance"] = acceptance_curve(curve, current=a)
         rows = sweep(scenario.replace("simulation", track=False), np.array(SWEEP_FRACTIONS) * critical)
         figures["tradeoff"] = tradeoff(rows, current=a)
+    if scenario.coils is not None:
+        figures.update(_coil_drawings(scenario, plan))
     if tracking is not None:
         figures["survival"] = survival(tracking)
         if sim.detector_distance is not None:
@@ -389,3 +395,13 @@ def _scenario_drawings(scenario: Scenario) -> dict[str, Figure]:
                 estimates.arrival_times(plan.final_velocity, sim.detector_distance)
             )
     return figures
+
+
+def _coil_drawings(scenario: Scenario, schedule: Schedule) -> dict[str, Figure]:
+    from .coilreport import coil_run, coil_scan
+
+    run = coil_run(scenario, schedule)
+    rows = slice(0, max(int(np.count_nonzero(run.plan.positions <= 3.0 * run.array.pitch)), 2))
+    early = CurrentPlan(run.plan.positions[rows], run.plan.currents[rows], run.plan.gradient[rows],
+                        run.plan.limited[rows])
+    return {"coil-currents": current_pulses(early, run.times[rows]), "coil-phases": phase_scan(coil_scan(scenario, run))}
