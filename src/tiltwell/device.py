@@ -282,6 +282,28 @@ class UniformMotion:
         return np.full(np.shape(as_finite_array(t, "t", "s")), self.speed)
 
 
+def _device_inputs(array: CoilArray, species: Species, schedule: Schedule | UniformMotion, particles: ArrayLike,
+                   box_half_widths: ArrayLike) -> tuple[FloatArray, FloatArray]:
+    """The particles (N, 6) [m, m/s] and box half widths (3,) [m] of a device run, checked
+    (also by :func:`tiltwell.compare_device`, before its costly rigid twin)."""
+    _check_array(array)
+    if not isinstance(species, Species):
+        raise TiltwellError(f"species must be a Species; got {type(species).__name__}")
+    if not isinstance(schedule, (Schedule, UniformMotion)):
+        raise TiltwellError(f"schedule must be a Schedule or UniformMotion; got {type(schedule).__name__}")
+    state = as_finite_array(particles, "particles", "m, m/s")
+    if state.ndim != 2 or state.shape[1] != 6 or state.shape[0] < 1:
+        raise TiltwellError(f"particles [m, m/s] must have shape (N, 6) with N >= 1; got shape {state.shape}")
+    halves = as_finite_array(box_half_widths, "box_half_widths", "m", ndim=1)
+    bore = array.radius - 0.5 * array.width
+    if halves.shape != (3,) or np.any(halves <= 0.0) or math.hypot(halves[0], halves[1]) >= bore:
+        raise TiltwellError(
+            f"box_half_widths [m] must be three values > 0 with hypot(hx, hy) < {bore:g} m (the bore); "
+            f"got {halves.tolist()!r}"
+        )
+    return state, halves
+
+
 def track_device(
     array: CoilArray,
     plan_times: ArrayLike | None,
@@ -345,24 +367,10 @@ def track_device(
     tables). Particles are tested against the box after whole steps. The same caution
     about the cone at the zero as in :func:`tiltwell.track` applies.
     """
-    _check_array(array)
-    if not isinstance(species, Species):
-        raise TiltwellError(f"species must be a Species; got {type(species).__name__}")
-    if not isinstance(schedule, (Schedule, UniformMotion)):
-        raise TiltwellError(f"schedule must be a Schedule or UniformMotion; got {type(schedule).__name__}")
-    state = as_finite_array(particles, "particles", "m, m/s")
-    if state.ndim != 2 or state.shape[1] != 6 or state.shape[0] < 1:
-        raise TiltwellError(f"particles [m, m/s] must have shape (N, 6) with N >= 1; got shape {state.shape}")
+    state, halves = _device_inputs(array, species, schedule, particles, box_half_widths)
     total = as_scalar(duration, "duration", "s", low=0.0, low_open=True)
     largest = as_scalar(time_step, "time_step", "s", low=0.0, low_open=True, high=total)
     target = as_scalar(gradient, "gradient", "T/m", low=0.0, low_open=True)
-    halves = as_finite_array(box_half_widths, "box_half_widths", "m", ndim=1)
-    bore = array.radius - 0.5 * array.width
-    if halves.shape != (3,) or np.any(halves <= 0.0) or math.hypot(halves[0], halves[1]) >= bore:
-        raise TiltwellError(
-            f"box_half_widths [m] must be three values > 0 with hypot(hx, hy) < {bore:g} m (the bore); "
-            f"got {halves.tolist()!r}"
-        )
     every = as_integer(record_every, "record_every", 1)
     if not isinstance(progress, (bool, np.bool_)):
         raise TiltwellError(f"progress must be True or False; got {progress!r}")

@@ -22,9 +22,9 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ._display import html_table
-from ._validation import TiltwellError, as_finite_array, as_integer, as_points, as_scalar
+from ._validation import TiltwellError, as_integer, as_points, as_scalar
 from .coilarray import CoilArray, CurrentPlan, _check_array, trap_currents
-from .device import UniformMotion, track_device
+from .device import UniformMotion, _device_inputs, track_device
 from .fieldmap import FieldMap
 from .fields import Coil, CoilSet
 from .schedule import Schedule
@@ -357,26 +357,12 @@ def compare_device(
     difference of the two runs also holds these interpolation errors, which a finer
     ``field_map_shape`` reduces.
     """
-    _check_array(array)
-    if not isinstance(species, Species):
-        raise TiltwellError(f"species must be a Species; got {type(species).__name__}")
-    if not isinstance(schedule, (Schedule, UniformMotion)):
-        raise TiltwellError(f"schedule must be a Schedule or UniformMotion; got {type(schedule).__name__}")
-    state = as_finite_array(particles, "particles", "m, m/s")
-    if state.ndim != 2 or state.shape[1] != 6 or state.shape[0] < 1:
-        raise TiltwellError(f"particles [m, m/s] must have shape (N, 6) with N >= 1; got shape {state.shape}")
+    state, halves = _device_inputs(array, species, schedule, particles, box_half_widths)
     if duration is None:
         if not isinstance(schedule, Schedule):
             raise TiltwellError("duration [s] must be given for a UniformMotion schedule; got None")
         duration = schedule.duration
     total = as_scalar(duration, "duration", "s", low=0.0, low_open=True)
-    halves = as_finite_array(box_half_widths, "box_half_widths", "m", ndim=1)
-    bore = array.radius - 0.5 * array.width
-    if halves.shape != (3,) or np.any(halves <= 0.0) or math.hypot(halves[0], halves[1]) >= bore:
-        raise TiltwellError(
-            f"box_half_widths [m] must be three values > 0 with hypot(hx, hy) < {bore:g} m (the bore); "
-            f"got {halves.tolist()!r}"
-        )
     as_scalar(time_step, "time_step", "s", low=0.0, low_open=True, high=total)
     every = as_integer(record_every, "record_every", 1)
     ends = schedule.position(np.array([0.0, total]))
