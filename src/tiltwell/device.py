@@ -32,7 +32,7 @@ from .coilarray import CoilArray, _check_array, _check_on_row, _local_currents
 from .fields import Coil, loop_field
 from .schedule import Schedule
 from .species import LinearZeeman, Species
-from .tracking import TrackingResult, _progress_bar
+from .tracking import TrackingResult, _progress_bar, _result
 
 __all__ = ["CoilFieldMap", "UniformMotion", "track_device"]
 
@@ -424,8 +424,9 @@ def track_device(
         shifted = rows - np.array([0.0, 0.0, trap_z[k]])[:, None]
         return np.any((shifted <= lower) | (shifted >= upper), axis=0)
 
-    index = np.flatnonzero(~outside(state[:, :3].T, 0))
-    lost_step[np.setdiff1d(np.arange(count), index)] = 0
+    starts_out = outside(state[:, :3].T, 0)
+    lost_step[starts_out] = 0
+    index = np.flatnonzero(~starts_out)
     r = np.ascontiguousarray(state[index, :3].T)  # rows (3, n)
     v = np.ascontiguousarray(state[index, 3:].T)
     a = np.empty_like(r)
@@ -465,11 +466,4 @@ def track_device(
     final[index, :3], final[index, 3:] = r, v
     final[index, 2] -= trap_z[steps]
     final[index, 5] -= trap_v[steps]
-    recorded = np.unique(np.append(np.arange(0, steps + 1, every), steps))
-    survival = (count - np.searchsorted(np.sort(lost_step), recorded, side="right")) / count
-    kept = lost_step > steps
-    lost_time = np.where(kept, np.inf, lost_step * dt)
-    arrays = (recorded * dt, survival, final, kept, lost_time)
-    for item in arrays:
-        item.setflags(write=False)
-    return TrackingResult(*arrays, "verlet (lab frame, coil array)", dt)
+    return _result(final, lost_step, steps, dt, every, "verlet (lab frame, coil array)")

@@ -330,9 +330,18 @@ def track(
         if bar is not None:
             bar.close()
 
+    return _result(final, lost_step, steps, dt, every, method)
+
+
+def _result(final: FloatArray, lost_step: NDArray[np.int64], steps: int, dt: float, every: int,
+            method: str) -> TrackingResult:
+    """The :class:`TrackingResult` of a run of ``steps`` steps of ``dt`` [s], from the step at
+    whose end each particle left (0: it started outside; ``steps + 1``: it stayed), with the
+    survival recorded every ``every`` steps and at the end. Shared with
+    :func:`tiltwell.track_device`."""
+    count = lost_step.size
     recorded = np.unique(np.append(np.arange(0, steps + 1, every), steps))
-    ordered = np.sort(lost_step)
-    survival = (count - np.searchsorted(ordered, recorded, side="right")) / count
+    survival = (count - np.searchsorted(np.sort(lost_step), recorded, side="right")) / count
     kept = lost_step > steps
     lost_time = np.where(kept, np.inf, lost_step * dt)
     arrays = (recorded * dt, survival, final, kept, lost_time)
