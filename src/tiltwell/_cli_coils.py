@@ -79,8 +79,9 @@ def coils_command(arguments: argparse.Namespace) -> None:
         raise TiltwellError(f"--track must be a number of particles >= 1; got {arguments.track}")
     try:
         run = coil_run(scenario)
-        summary = coil_summary(scenario, run)
-        check = None if arguments.track is None else device_check(scenario, arguments.track,
+        scan = coil_scan(scenario, run)
+        summary = coil_summary(scenario, run, scan)
+        check = None if arguments.track is None else device_check(scenario, arguments.track, run=run,
                                                                   progress=arguments.progress)
     except TiltwellError as error:
         raise TiltwellError(f"{path}: {error}") from None
@@ -88,7 +89,7 @@ def coils_command(arguments: argparse.Namespace) -> None:
         summary["device_check"] = _device_numbers(scenario, check, device_box(scenario, run.array))
     if csv_path is not None:
         run.plan.to_csv(csv_path, run.times)
-    written = [] if folder is None else _coil_figures(scenario, run, coil_scan(scenario, run), check, folder)
+    written = [] if folder is None else _coil_figures(scenario, run, scan, check, folder)
     if arguments.json:
         print(json.dumps(summary))
         return
@@ -134,14 +135,11 @@ def _print_device(numbers: dict[str, Any]) -> None:
 
 
 def _coil_figures(scenario: scenario_module.Scenario, run: Any, scan: Any, check: Any, folder: str) -> list[Path]:
-    from .figures import current_pulses, device_arrivals, device_phase_space, device_survival, phase_scan, save
+    from .figures import coil_figures, device_arrivals, device_phase_space, device_survival, save
 
     target = Path(folder)
     target.mkdir(parents=True, exist_ok=True)
-    rows = slice(0, max(int(np.count_nonzero(run.plan.positions <= 3.0 * run.array.pitch)), 2))
-    early = type(run.plan)(run.plan.positions[rows], run.plan.currents[rows], run.plan.gradient[rows],
-                           run.plan.limited[rows])
-    drawings = {"coil-currents": current_pulses(early, run.times[rows]), "coil-phases": phase_scan(scan)}
+    drawings = coil_figures(run, scan)
     if check is not None:
         drawings["device-survival"] = device_survival(check)
         drawings["device-phase-space"] = device_phase_space(check)

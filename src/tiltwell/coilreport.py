@@ -273,7 +273,7 @@ def coil_scan(scenario: Scenario, run: CoilRun) -> PhaseScan:
                               samples=scenario.simulation.samples)
 
 
-def coil_summary(scenario: Scenario, run: CoilRun | None = None) -> dict[str, Any]:
+def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan | None = None) -> dict[str, Any]:
     """All numbers of the scenario's coil row as a JSON-ready dict (SI) with a ``units`` map
     and the ``caution``.
 
@@ -283,6 +283,8 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None) -> dict[str, An
         With a ``[coils]`` section.
     run : CoilRun, optional
         A :func:`coil_run` of the same scenario, to reuse.
+    scan : PhaseScan, optional
+        Its :func:`coil_scan`, to reuse.
 
     Returns
     -------
@@ -317,7 +319,7 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None) -> dict[str, An
                             f"estimate; got {coils.width!r} x {coils.height!r} with radius {coils.radius!r}")
     run = coil_run(scenario) if run is None else run
     array, plan = run.array, run.plan
-    scan = coil_scan(scenario, run)
+    scan = coil_scan(scenario, run) if scan is None else scan
     durations, action = _pulses(run)
     slope, step = _slope(run), _handover_step(run)
     peak = float(np.abs(plan.currents).max())
@@ -368,7 +370,8 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None) -> dict[str, An
     return summary
 
 
-def device_check(scenario: Scenario, particles: int | None = None, *, progress: bool = False) -> DeviceComparison:
+def device_check(scenario: Scenario, particles: int | None = None, *, run: CoilRun | None = None,
+                 progress: bool = False) -> DeviceComparison:
     """The scenario's beam through its coil row and through the row's rigid twin.
 
     ``particles`` (default ``[simulation] particles``) are drawn from the beam at switch-on
@@ -378,11 +381,11 @@ def device_check(scenario: Scenario, particles: int | None = None, *, progress: 
     table) and interpolated linearly between, as a pulse generator would play them. Time
     step: ``[simulation] time_step``, else the rigid trap's default
     (:func:`tiltwell.capture.default_time_step`). Both runs lose particles at the walls of
-    :func:`device_box`.
+    :func:`device_box`. ``run``: a :func:`coil_run` of the same scenario, to reuse.
     """
     coils = _section(scenario)
     built = build(scenario)
-    run = coil_run(scenario, built.schedule)
+    run = coil_run(scenario, built.schedule) if run is None else run
     count = scenario.simulation.particles if particles is None else as_integer(particles, "particles", 1)
     step = scenario.simulation.time_step
     if step is None:

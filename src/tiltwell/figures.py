@@ -47,10 +47,12 @@ from ._validation import TiltwellError, as_finite_array, as_scalar
 from .acceptance import AcceptanceCurve, longitudinal_acceptance
 from .beam import PhasePlane
 from .coilarray import CurrentPlan
+from .coilreport import CoilRun, coil_run, coil_scan
 from .constants import millikelvin
 from .report import build, estimate
 from .scenario import Scenario
-from .schedule import Schedule, arrival_histogram
+from .schedule import arrival_histogram
+from .moving import PhaseScan
 from .separatrix import Separatrix
 from .sweep import sweep
 from .tracking import TrackingResult
@@ -58,7 +60,7 @@ from .traps import Trap
 
 __all__ = ["PALETTE", "acceptance_curve", "arrival_times", "phase_plane", "potential", "save", "scenario_figures",
            "survival", "tradeoff",
-           "current_pulses", "device_arrivals", "device_phase_space", "device_survival", "phase_scan"]
+           "coil_figures", "current_pulses", "device_arrivals", "device_phase_space", "device_survival", "phase_scan"]
 
 #: Particles drawn in a scenario's phase planes (the first ones of the random sample).
 DRAWN_PARTICLES = 3000
@@ -387,7 +389,8 @@ def _scenario_drawings(scenario: Scenario) -> dict[str, Figure]:
         rows = sweep(scenario.replace("simulation", track=False), np.array(SWEEP_FRACTIONS) * critical)
         figures["tradeoff"] = tradeoff(rows, current=a)
     if scenario.coils is not None:
-        figures.update(_coil_drawings(scenario, plan))
+        run = coil_run(scenario, plan)
+        figures.update(coil_figures(run, coil_scan(scenario, run)))
     if tracking is not None:
         figures["survival"] = survival(tracking)
         if sim.detector_distance is not None:
@@ -397,11 +400,12 @@ def _scenario_drawings(scenario: Scenario) -> dict[str, Figure]:
     return figures
 
 
-def _coil_drawings(scenario: Scenario, schedule: Schedule) -> dict[str, Figure]:
-    from .coilreport import coil_run, coil_scan
-
-    run = coil_run(scenario, schedule)
-    rows = slice(0, max(int(np.count_nonzero(run.plan.positions <= 3.0 * run.array.pitch)), 2))
-    early = CurrentPlan(run.plan.positions[rows], run.plan.currents[rows], run.plan.gradient[rows],
-                        run.plan.limited[rows])
-    return {"coil-currents": current_pulses(early, run.times[rows]), "coil-phases": phase_scan(coil_scan(scenario, run))}
+def coil_figures(run: CoilRun, scan: PhaseScan) -> dict[str, Figure]:
+    """The coil row's figures by name: ``coil-currents`` (:func:`current_pulses` for the
+    coils that carry current while the trap crosses its first three pitches, where it is
+    fastest) and ``coil-phases`` (:func:`phase_scan`), from a
+    :func:`tiltwell.coilreport.coil_run` and its :func:`~tiltwell.coilreport.coil_scan`."""
+    plan = run.plan
+    rows = slice(0, max(int(np.count_nonzero(plan.positions <= 3.0 * run.array.pitch)), 2))
+    early = CurrentPlan(plan.positions[rows], plan.currents[rows], plan.gradient[rows], plan.limited[rows])
+    return {"coil-currents": current_pulses(early, run.times[rows]), "coil-phases": phase_scan(scan)}
