@@ -28,6 +28,7 @@ from __future__ import annotations
 import dataclasses
 import statistics
 import time
+from pathlib import Path
 from collections.abc import Callable
 from typing import Any
 
@@ -48,32 +49,8 @@ TARGET_S = 0.05
 #: deceleration there is 1.6e4 m/s^2).
 SPECIES_DECELERATION = 3000.0
 
-COILS = """
-# invented coil-pair scenario (no real experiment)
-[species]
-name = "Rb-87"
-[trap]
-kind = "coils"
-radius = 0.01
-separation = 0.012
-current = 400.0
-turns = 50
-width = 0.002
-height = 0.002
-half_widths = [0.006, 0.006, 0.012]
-[beam]
-gas = "Xe"
-temperature = 300.0
-relative_spread = 0.05
-valve_open_time = 2.0e-5
-nozzle_diameter = 5.0e-4
-nozzle_skimmer_distance = 0.1
-skimmer_diameter = 2.0e-3
-flight_distance = 0.3
-[deceleration]
-final_velocity = 10.0
-deceleration = 5000.0
-"""
+# the invented coil-pair scenario of tests/test_explorer.py, with the default sample size and seed
+COILS = (Path(__file__).parents[1] / "tests" / "data" / "coil_pair.toml").read_text(encoding="utf-8")
 
 
 def _times(calls: list[Callable[[], object]]) -> list[float]:
@@ -202,7 +179,7 @@ def run() -> tuple[list[dict[str, object]], list[str]]:
             checks.extend(lines)
     finally:
         demo.close()
-    coils = explore(scenario_io.loads(COILS), auto_tradeoff=False)
+    coils = explore(scenario_io.loads(COILS).replace("simulation", particles=10_000, seed=0), auto_tradeoff=False)
     try:
         row, lines = slider_row(coils, COIL_MOVES, "coil pair")
         rows.append(row)

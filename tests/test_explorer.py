@@ -23,39 +23,7 @@ from tiltwell import scenario as scenario_io
 from tiltwell.explorer import DEMO, Explorer, explore
 from tiltwell.report import build
 
-COILS = """
-# invented coil-pair scenario for the explorer tests (no real experiment)
-[species]
-name = "Rb-87"
-
-[trap]
-kind = "coils"
-radius = 0.01
-separation = 0.012
-current = 400.0
-turns = 50
-width = 0.002
-height = 0.002
-half_widths = [0.006, 0.006, 0.012]
-
-[beam]
-gas = "Xe"
-temperature = 300.0
-relative_spread = 0.05
-valve_open_time = 2.0e-5
-nozzle_diameter = 5.0e-4
-nozzle_skimmer_distance = 0.1
-skimmer_diameter = 2.0e-3
-flight_distance = 0.3
-
-[deceleration]
-final_velocity = 10.0
-deceleration = 5000.0
-
-[simulation]
-particles = 2000
-seed = 7
-"""
+COILS = (Path(__file__).parent / "data" / "coil_pair.toml").read_text(encoding="utf-8")
 
 
 def mk(energy: np.ndarray | float) -> np.ndarray:
