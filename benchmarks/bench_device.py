@@ -27,7 +27,7 @@ import numpy as np
 
 import tiltwell
 from bench_fields import median_time
-from tiltwell.device import track_device
+from tiltwell.dynamics.device import track_device
 
 PARTICLES = 100_000
 TIME_STEP = 1e-6

@@ -17,7 +17,7 @@ jupyter_bokeh sends to the browser (the browser's own drawing is not included).
   trap's samples between moves; the reference samples the field again at every call).
 - 20 moves of the coil-array part's radius slider on the demo (section open, background
   rescan off): the redraw of the currents, readouts and out-of-date marks, against
-  ``tiltwell.coilarray.waveforms`` called directly for the same coils and times; the check
+  ``tiltwell.coils.array.waveforms`` called directly for the same coils and times; the check
   line also times one phase scan (``moving_trap_phases``, run in the background in use).
 
 Run standalone (``python benchmarks/bench_explorer.py``) or call :func:`run`.
@@ -36,9 +36,9 @@ import numpy as np
 
 import tiltwell
 from tiltwell import scenario as scenario_io
-from tiltwell.coilarray import waveforms
+from tiltwell.coils.array import waveforms
 from tiltwell.explorer import explore
-from tiltwell.report import build
+from tiltwell.workflows.report import build
 
 MOVES = 30
 COIL_MOVES = 20
@@ -137,7 +137,7 @@ def species_row(app: Any) -> tuple[dict[str, object], list[str]]:
 
 
 def coil_part_row(app: Any) -> tuple[dict[str, object], list[str]]:
-    from tiltwell._explorer_coilmodel import current_array, current_window
+    from tiltwell.explorer.coilmodel import current_array, current_window
 
     part = app.coil_array
     part.auto_scan = False

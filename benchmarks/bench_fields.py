@@ -13,7 +13,7 @@ from collections.abc import Callable
 import magpylib
 import numpy as np
 
-from tiltwell.fields import anti_helmholtz, loop_field
+from tiltwell.physics.fields import anti_helmholtz, loop_field
 
 REPEATS = 7
 POINTS = 100_000

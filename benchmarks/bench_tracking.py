@@ -30,7 +30,7 @@ from scipy.integrate import solve_ivp
 
 import tiltwell
 from bench_fields import median_time
-from tiltwell.tracking import track
+from tiltwell.dynamics.tracking import track
 
 PARTICLES = 100_000
 STEPS = 200

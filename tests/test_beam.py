@@ -1,4 +1,4 @@
-"""Tests of tiltwell.beam and tiltwell.source. Every numerical check names its outside reference beside it.
+"""Tests of tiltwell.physics.beam and tiltwell.source. Every numerical check names its outside reference beside it.
 
 Demo numbers are invented (an invented lab's krypton-seeded source), not a published setup.
 """
@@ -13,9 +13,9 @@ import pytest
 import scipy.constants as sc
 from scipy import integrate, stats
 
-from tiltwell._validation import TiltwellError
-from tiltwell.beam import Beam, PhasePlane
-from tiltwell.source import (
+from tiltwell._base.validation import TiltwellError
+from tiltwell.physics.beam import Beam, PhasePlane
+from tiltwell.physics.source import (
     Aperture,
     Gas,
     Source,

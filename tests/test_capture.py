@@ -21,7 +21,7 @@ from tiltwell import (
     separatrix,
     trap_acceptance,
 )
-from tiltwell.constants import ATOMIC_MASS, BOHR_MAGNETON
+from tiltwell.physics.constants import ATOMIC_MASS, BOHR_MAGNETON
 
 PARTICLE = Species("test-particle", 20 * ATOMIC_MASS, LinearZeeman(2 * BOHR_MAGNETON))
 

@@ -54,7 +54,7 @@ def test_species_listing_names_every_entry(capsys: pytest.CaptureFixture[str]) -
 )
 def test_errors_are_one_line_without_traceback(argv: list[str], word: str) -> None:
     completed = subprocess.run(
-        [sys.executable, "-m", "tiltwell.cli", *argv], capture_output=True, text=True, check=False
+        [sys.executable, "-m", "tiltwell", *argv], capture_output=True, text=True, check=False
     )
     assert completed.returncode == 2
     assert word in completed.stderr
@@ -127,7 +127,7 @@ def test_run_scenario_errors_are_one_line(tmp_path, edit: str, word: str) -> Non
 
     path = tmp_path / "bad.toml"
     path.write_text(DEMO_SCENARIO.read_text().replace(edit, word))
-    completed = subprocess.run([sys.executable, "-m", "tiltwell.cli", "run", str(path)],
+    completed = subprocess.run([sys.executable, "-m", "tiltwell", "run", str(path)],
                                capture_output=True, text=True, check=False)
     assert completed.returncode == 2
     assert "Traceback" not in completed.stderr
@@ -176,7 +176,7 @@ def test_coils_text_summary_carries_the_caution(tmp_path, capsys: pytest.Capture
 
 
 def _coils_cli(*argv: str) -> subprocess.CompletedProcess[str]:
-    return subprocess.run([sys.executable, "-m", "tiltwell.cli", "coils", *argv], capture_output=True, text=True,
+    return subprocess.run([sys.executable, "-m", "tiltwell", "coils", *argv], capture_output=True, text=True,
                           check=False)
 
 
@@ -229,7 +229,7 @@ def test_coils_track_writes_the_device_check_and_its_figures(tmp_path) -> None: 
     import tiltwell as tw
     from tiltwell import scenario as sc
     from tiltwell.cli import DEMO_SCENARIO
-    from tiltwell.coilreport import coil_run, device_box
+    from tiltwell.workflows.coilreport import coil_run, device_box
 
     demo = sc.load(DEMO_SCENARIO).replace("coils", phases=2).replace("simulation", detector_distance=0.2)
     path = sc.save(demo, tmp_path / "plan.toml")

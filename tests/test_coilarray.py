@@ -21,8 +21,8 @@ import pytest
 from scipy import optimize
 
 import tiltwell
-from tiltwell.coilarray import CoilArray, on_axis_response, trap_currents, waveforms
-from tiltwell.moving import moving_trap_phases
+from tiltwell.coils.array import CoilArray, on_axis_response, trap_currents, waveforms
+from tiltwell.coils.moving import moving_trap_phases
 
 # An invented coil row: 12 coils, 8 mm bore radius, 6 mm pitch, small wound cross-section.
 WOUND = CoilArray(count=12, pitch=0.006, radius=0.008, first=0.01, turns=20, width=0.002, height=0.003)
@@ -258,7 +258,7 @@ def test_csv_write_is_atomic(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) ->
 HYDROGEN = tiltwell.species("H")
 
 
-def scan(pitch: float) -> tiltwell.coilarray.PhaseScan:
+def scan(pitch: float) -> tiltwell.coils.array.PhaseScan:
     array = CoilArray(count=9, pitch=pitch, radius=0.01, max_current=1e4)
     return moving_trap_phases(array, 1.0, HYDROGEN, box_half_widths=(0.006, 0.006, 0.01), phases=6, samples=401)
 

@@ -29,9 +29,9 @@ from scipy.special import ellipe, ellipk
 
 from tiltwell import scenario as sc
 from tiltwell import species
-from tiltwell._validation import TiltwellError
+from tiltwell._base.validation import TiltwellError
 from tiltwell.cli import DEMO_SCENARIO, main
-from tiltwell.coilreport import UNITS, coil_array, coil_run, coil_summary
+from tiltwell.workflows.coilreport import UNITS, coil_array, coil_run, coil_summary
 
 # The demo's [coils] and [deceleration] numbers, typed in from src/tiltwell/data/demo.toml.
 PITCH, RADIUS, TURNS, WIDTH, HEIGHT, FILL = 0.012, 0.019, 200, 0.006, 0.010, 0.6

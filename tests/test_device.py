@@ -1,4 +1,4 @@
-"""Lab-frame tracking through a coil array's moving field (tiltwell.device).
+"""Lab-frame tracking through a coil array's moving field (tiltwell.dynamics.device).
 
 All geometry below is invented for the tests (a 5 mm pitch row of 8 mm coils, OH molecules).
 """
@@ -11,8 +11,8 @@ import pytest
 from scipy import optimize
 
 import tiltwell as tw
-from tiltwell.device import CoilFieldMap, UniformMotion, _StepField, track_device
-from tiltwell.fields import Coil, loop_field
+from tiltwell.dynamics.device import CoilFieldMap, UniformMotion, _StepField, track_device
+from tiltwell.physics.fields import Coil, loop_field
 
 WOUND = tw.CoilArray(count=12, pitch=0.006, radius=0.008, first=-0.02, turns=20, width=0.002, height=0.003)
 ROW = tw.CoilArray(count=40, pitch=0.005, radius=0.008, first=-0.02, turns=50)

@@ -1,4 +1,4 @@
-"""The coil-array device against its rigid, phase-averaged twin (tiltwell.devicecompare).
+"""The coil-array device against its rigid, phase-averaged twin (tiltwell.dynamics.compare).
 
 All geometry is invented for the tests: rows of thin 8 mm radius coils of 50 turns at
 pitches of 1.0, 0.6 and 0.35 radius, a 2 T/m trap, OH molecules, a 4 x 4 x 6 mm
@@ -17,9 +17,9 @@ import pytest
 from scipy.constants import mu_0
 
 import tiltwell as tw
-from tiltwell.device import UniformMotion
-from tiltwell.devicecompare import DeviceComparison, PhaseAveragedField, compare_device
-from tiltwell.tracking import TrackingResult
+from tiltwell.dynamics.device import UniformMotion
+from tiltwell.dynamics.compare import DeviceComparison, PhaseAveragedField, compare_device
+from tiltwell.dynamics.tracking import TrackingResult
 
 RADIUS = 0.008  # m
 TURNS = 50

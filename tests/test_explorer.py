@@ -1,6 +1,6 @@
 """The notebook explorer, without a browser: controls set in code, then the Bokeh sources,
 readouts and state are compared with what the library computes directly from the scenario
-the controls describe (:func:`tiltwell.report.build` of :meth:`Explorer.scenario`), and
+the controls describe (:func:`tiltwell.workflows.report.build` of :meth:`Explorer.scenario`), and
 with closed forms where the explorer draws something itself (the beam ellipses)."""
 
 from __future__ import annotations
@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 import tiltwell as tw
 from tiltwell import scenario as scenario_io
 from tiltwell.explorer import DEMO, Explorer, explore
-from tiltwell.report import build
+from tiltwell.workflows.report import build
 
 COILS = (Path(__file__).parent / "data" / "coil_pair.toml").read_text(encoding="utf-8")
 

@@ -1,6 +1,6 @@
 """The explorer's coil-array part, without a browser: controls set in code, then the Bokeh
 sources, readouts and state compared with the library called directly
-(:func:`tiltwell.coilarray.waveforms`, :func:`tiltwell.moving.moving_trap_phases`,
+(:func:`tiltwell.coils.array.waveforms`, :func:`tiltwell.coils.moving.moving_trap_phases`,
 :func:`tiltwell.trap_acceptance`) at the settings the controls describe, and the drawn
 currents checked against the textbook on-axis loop field and constant-deceleration
 kinematics written here."""
@@ -21,12 +21,12 @@ from scipy import optimize
 
 import tiltwell as tw
 from tiltwell import scenario as scenario_io
-from tiltwell._explorer_coils import TITLE, CoilPart
-from tiltwell.coilarray import CoilArray, waveforms
+from tiltwell.explorer.coils import TITLE, CoilPart
+from tiltwell.coils.array import CoilArray, waveforms
 from tiltwell.explorer import DEMO, Explorer, explore
-from tiltwell.hardware import ELECTRICAL_CAUTION
-from tiltwell.moving import moving_trap_phases
-from tiltwell.report import build
+from tiltwell.physics.hardware import ELECTRICAL_CAUTION
+from tiltwell.coils.moving import moving_trap_phases
+from tiltwell.workflows.report import build
 
 MU0 = sc.mu_0  # CODATA vacuum permeability (scipy.constants)
 

@@ -15,9 +15,9 @@ import pytest
 from scipy.constants import mu_0
 from scipy.special import ellipe, ellipk
 
-from tiltwell import fields
-from tiltwell._validation import TiltwellError
-from tiltwell.fields import (
+from tiltwell.physics import fields
+from tiltwell._base.validation import TiltwellError
+from tiltwell.physics.fields import (
     Coil,
     CoilSet,
     FieldSource,

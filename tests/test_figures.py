@@ -29,7 +29,7 @@ from matplotlib.figure import Figure
 import tiltwell as tw
 from tiltwell import figures, scenario
 from tiltwell.cli import DEMO_SCENARIO, main
-from tiltwell.constants import millikelvin
+from tiltwell.physics.constants import millikelvin
 
 GRADIENT, MAX_FIELD = 250.0, 0.8  # T/m, T: the README's ideal quadrupole
 EDGE = MAX_FIELD / GRADIENT  # m, where |B| reaches the cap on the axis

@@ -28,8 +28,8 @@ from scipy.constants import mu_0
 
 import tiltwell as tw
 from tiltwell import figures
-from tiltwell.devicecompare import DeviceComparison
-from tiltwell.moving import PhaseScan
+from tiltwell.dynamics.compare import DeviceComparison
+from tiltwell.coils.moving import PhaseScan
 
 ROW = tw.CoilArray(count=16, pitch=0.005, radius=0.008, first=-0.01, turns=50)  # thin coils
 GRADIENT = 2.0  # T/m

@@ -11,7 +11,7 @@ from scipy import constants
 
 from tiltwell import scenario as sc
 from tiltwell import species, summarise, sweep
-from tiltwell.sweep import COLUMNS, sweep_csv
+from tiltwell.workflows.sweep import COLUMNS, sweep_csv
 
 DEMO = Path(sc.__file__).with_name("data") / "demo.toml"
 

@@ -14,7 +14,7 @@ import pytest
 from scipy import integrate
 
 from tiltwell import TiltwellError, loop_field
-from tiltwell.hardware import (
+from tiltwell.physics.hardware import (
     COPPER_DENSITY,
     COPPER_RESISTIVITY,
     COPPER_SPECIFIC_HEAT,
@@ -22,7 +22,7 @@ from tiltwell.hardware import (
     HardwareEstimate,
     hardware_estimate,
 )
-from tiltwell.schedule import (
+from tiltwell.coils.schedule import (
     CoilTiming,
     Schedule,
     arrival_histogram,

@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 import scipy.constants as sc
 
-from tiltwell._validation import TiltwellError
-from tiltwell.constants import BOHR_MAGNETON, ELECTRON_G, NUCLEAR_MAGNETON, PLANCK
-from tiltwell.species import (
+from tiltwell._base.validation import TiltwellError
+from tiltwell.physics.constants import BOHR_MAGNETON, ELECTRON_G, NUCLEAR_MAGNETON, PLANCK
+from tiltwell.physics.species import (
     BreitRabi,
     LinearZeeman,
     Species,

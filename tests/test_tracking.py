@@ -25,7 +25,7 @@ from tiltwell import (
     gaussian_fraction,
     longitudinal_acceptance,
 )
-from tiltwell.tracking import FieldMap, TrackingResult, track
+from tiltwell.dynamics.tracking import FieldMap, TrackingResult, track
 
 MU_B = constants.physical_constants["Bohr magneton"][0]
 AMU = constants.physical_constants["atomic mass constant"][0]

@@ -2,12 +2,23 @@
 
 The stable core (see DESIGN.md): :func:`separatrix`, :func:`loop_field`,
 :func:`acceptance_6d`, :func:`gaussian_fraction`. SI units throughout.
+
+The subpackages are the layers, imports pointing down only: :mod:`._base` (validation,
+display, files) and :mod:`.physics` (layer 1); :mod:`.wells`, :mod:`.coils` and
+:mod:`.dynamics` (layer 2, the computation); :mod:`.workflows` (layer 3: scenarios,
+reports, sweeps); :mod:`.figures`, :mod:`.explorer` and :mod:`.cli` (layer 4, the views).
 """
 
 from typing import Any
 
-from ._validation import TiltwellError
-from .acceptance import (
+from ._base.validation import TiltwellError
+from .physics.beam import Beam, PhasePlane
+from .physics.constants import from_millikelvin, millikelvin
+from .physics.fields import Coil, CoilSet, IdealQuadrupole, anti_helmholtz, loop_field
+from .physics.hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
+from .physics.source import Aperture, Gas, Source, gas, mixture, terminal_velocity
+from .physics.species import BreitRabi, LinearZeeman, Species, TabulatedZeeman, catalogue, species
+from .wells.acceptance import (
     AcceptanceCurve,
     TrapAcceptance,
     acceptance_curve,
@@ -15,26 +26,21 @@ from .acceptance import (
     trap_acceptance,
     transverse_acceptance,
 )
-from .constants import from_millikelvin, millikelvin
-from .beam import Beam, PhasePlane
-from .capture import CaptureEstimates, capture_estimates
-from .coilarray import CoilArray, CurrentPlan, trap_currents, waveforms
-from .device import CoilFieldMap, UniformMotion, track_device
-from .devicecompare import DeviceComparison, PhaseAveragedField, compare_device
-from .energetic import EnergeticAcceptance, acceptance_6d, energetic_acceptance
-from .fields import CoilSet, Coil, IdealQuadrupole, anti_helmholtz, loop_field
-from .hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
-from .moving import PhaseScan, moving_trap_phases
-from .overlap import energetic_fraction, gaussian_fraction, plane_product_fraction
-from .report import build, summarise
-from .scenario import Scenario
-from .schedule import CoilTiming, Schedule, arrival_times, coil_timing, constant_deceleration
-from .separatrix import Separatrix, separatrix
-from .source import Aperture, Gas, Source, gas, mixture, terminal_velocity
-from .species import BreitRabi, LinearZeeman, Species, TabulatedZeeman, catalogue, species
-from .sweep import sweep
-from .tracking import FieldMap, TrackingResult, track
-from .traps import Trap
+from .wells.energetic import EnergeticAcceptance, acceptance_6d, energetic_acceptance
+from .wells.overlap import energetic_fraction, gaussian_fraction, plane_product_fraction
+from .wells.separatrix import Separatrix, separatrix
+from .wells.traps import Trap
+from .coils.array import CoilArray, CurrentPlan, trap_currents, waveforms
+from .coils.moving import PhaseScan, moving_trap_phases
+from .coils.schedule import CoilTiming, Schedule, arrival_times, coil_timing, constant_deceleration
+from .dynamics.capture import CaptureEstimates, capture_estimates
+from .dynamics.compare import DeviceComparison, PhaseAveragedField, compare_device
+from .dynamics.device import CoilFieldMap, UniformMotion, track_device
+from .dynamics.tracking import FieldMap, TrackingResult, track
+from .workflows import scenario
+from .workflows.report import build, summarise
+from .workflows.scenario import Scenario
+from .workflows.sweep import sweep
 
 __version__ = "0.1.0"
 
@@ -106,6 +112,7 @@ __all__ = [
     "mixture",
     "moving_trap_phases",
     "plane_product_fraction",
+    "scenario",
     "separatrix",
     "species",
     "summarise",

@@ -1,0 +1,163 @@
+"""Three estimates of the captured fraction, side by side.
+
+- ``overlap``: the product of the longitudinal and two transverse Gaussian overlaps with
+  the 1-D separatrices (:func:`tiltwell.wells.overlap.plane_product_fraction`). Quick, smooth in
+  every parameter, blind to coupling between the planes.
+- ``energetic``: sampled particles whose energy in the tilted trap is below the 6-D escape
+  energy, in the well's connected region (:func:`tiltwell.wells.overlap.energetic_fraction`).
+  For a static potential, energy conservation keeps every such particle: a lower bound.
+- ``tracked``: the same sample integrated through the decelerating trap for the whole
+  deceleration (:func:`tiltwell.dynamics.tracking.track`). It includes everything the model has:
+  particles above the escape energy that stay for the duration because their way out is
+  slow to find, and whatever the time dependence (a deceleration profile, a switch-on
+  ramp) adds. For a static trap it is never below ``energetic`` beyond the binomial noise
+  and the integrator's energy error.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .._base.display import html_table
+from .._base.validation import TiltwellError, as_integer, as_scalar
+from ..wells.acceptance import TrapAcceptance, trap_acceptance
+from ..physics.beam import Beam
+from ..physics.fields import IdealQuadrupole
+from ..wells.overlap import energetic_fraction, plane_product_fraction
+from ..coils.schedule import arrival_times
+from .tracking import FieldMap, TrackingResult, track
+from ..wells.traps import Trap
+
+__all__ = ["CaptureEstimates", "capture_estimates", "default_time_step"]
+
+#: Integration steps per characteristic crossing time of the well (see default_time_step).
+STEPS_PER_CROSSING = 100
+
+
+@dataclass(frozen=True, eq=False)
+class CaptureEstimates:
+    """The captured fraction three ways, with the acceptance and tracking behind them.
+
+    Attributes
+    ----------
+    overlap : float
+        Product of the plane overlaps, in [0, 1].
+    energetic, energetic_error : float
+        Energetic 6-D fraction and its binomial standard error.
+    tracked, tracked_error : float
+        Fraction kept by trajectory integration, and its binomial standard error; NaN when
+        tracking was skipped.
+    particles : int
+        Sample size of the two Monte-Carlo estimates.
+    acceptance : TrapAcceptance
+        Longitudinal, transverse and 6-D acceptance at this deceleration.
+    tracking : TrackingResult or None
+        Survival against time, final phase space and per-particle kept flags.
+    """
+
+    overlap: float
+    energetic: float
+    energetic_error: float
+    tracked: float
+    tracked_error: float
+    particles: int
+    acceptance: TrapAcceptance
+    tracking: TrackingResult | None
+
+    def arrival_times(self, release_velocity: float, distance: float) -> NDArray[np.float64]:
+        """Arrival times [s] of the kept particles at a detector ``distance`` [m] beyond
+        the trap centre after release at ``release_velocity`` [m/s] (free flight from the
+        tracked final phase space, :func:`tiltwell.coils.schedule.arrival_times`)."""
+        if self.tracking is None:
+            raise TiltwellError("no trajectories were tracked: nothing to release (track_particles=True)")
+        return arrival_times(self.tracking.final[self.tracking.kept], release_velocity, distance)
+
+    def _repr_html_(self) -> str:
+        rows = [
+            ("phase-space overlap", f"{self.overlap:.4g}"),
+            ("energetic 6-D", f"{self.energetic:.4g} ± {self.energetic_error:.2g}"),
+            ("trajectories", f"{self.tracked:.4g} ± {self.tracked_error:.2g}"),
+            ("particles", f"{self.particles}"),
+        ]
+        return html_table("Captured fraction", rows)
+
+
+def default_time_step(acceptance: TrapAcceptance, mass: float) -> float:
+    """A time step [s]: the crossing time of the longitudinal well, (z_front - z_back) /
+    sqrt(2 depth / m), divided by ``STEPS_PER_CROSSING``."""
+    well = acceptance.longitudinal
+    if not well.bound:
+        raise TiltwellError("no bound well at this deceleration: nothing to track (give time_step [s] explicitly)")
+    speed = math.sqrt(2.0 * well.depth / mass)
+    return (well.z_front - well.z_back) / speed / STEPS_PER_CROSSING
+
+
+def capture_estimates(
+    trap: Trap,
+    deceleration: float,
+    beam: Beam,
+    duration: float,
+    *,
+    particles: int = 10_000,
+    seed: int = 0,
+    mismatch: float = 0.0,
+    time_step: float | None = None,
+    method: str = "verlet",
+    track_particles: bool = True,
+    rtol: float = 1e-2,
+    samples: int = 2001,
+    switch_on_time: float = 0.0,
+    progress: bool = False,
+) -> CaptureEstimates:
+    """Captured fraction of ``beam`` in ``trap`` decelerating at ``deceleration`` [m/s^2]
+    for ``duration`` [s], three ways (see the module notes for how they differ).
+
+    Parameters
+    ----------
+    particles : int
+        Monte-Carlo sample size (>= 1), drawn with ``seed``.
+    mismatch : float
+        Trap velocity minus the beam's mean velocity [m/s].
+    time_step : float, optional
+        Integrator step [s]; by default :func:`default_time_step`.
+    method : str
+        Integrator name, see :func:`tiltwell.dynamics.tracking.track`.
+    track_particles : bool
+        False skips the trajectories (``tracked`` is NaN).
+    samples : int
+        Samples of each 1-D cut (axis, radial) of the acceptance.
+    switch_on_time : float
+        The trap depth ramps up linearly over this time [s] (0: on at once). Only the
+        trajectories see it; the overlap and energetic estimates assume a trap that is
+        fully on.
+    """
+    a = as_scalar(deceleration, "deceleration", "m/s^2")
+    duration = as_scalar(duration, "duration", "s", low=0.0, low_open=True)
+    mismatch = as_scalar(mismatch, "mismatch", "m/s")
+    switch_on_time = as_scalar(switch_on_time, "switch_on_time", "s", low=0.0, high=duration)
+    particles = as_integer(particles, "particles", 1)
+    acceptance = trap_acceptance(trap, a, samples=samples, rtol=rtol)
+    overlap = plane_product_fraction(acceptance.longitudinal, acceptance.transverse, beam, mismatch)
+    if acceptance.energetic is None:
+        empty = CaptureEstimates(overlap, 0.0, 0.0, 0.0 if track_particles else math.nan, 0.0, int(particles),
+                                 acceptance, None)
+        return empty
+    sample = beam.sample(int(particles), seed=seed)
+    sample[:, 5] -= mismatch
+    energetic, energetic_error = energetic_fraction(trap, acceptance.energetic, a, sample)
+    if not track_particles:
+        return CaptureEstimates(overlap, energetic, energetic_error, math.nan, math.nan, int(particles), acceptance, None)
+    step = default_time_step(acceptance, trap.mass) if time_step is None else time_step
+    step = min(step, duration)
+    # Coil fields are costly to differentiate at every step: interpolate a precomputed map.
+    field_map = None if isinstance(trap.source, IdealQuadrupole) else FieldMap.from_trap(trap)
+    ramp = None if switch_on_time == 0.0 else (lambda t: min(max(t / switch_on_time, 0.0), 1.0))
+    result = track(trap, sample, duration, step, deceleration=a, method=method, field_map=field_map,
+                   ramp=ramp, progress=progress)
+    return CaptureEstimates(
+        overlap, energetic, energetic_error, result.fraction, result.binomial_error, int(particles), acceptance, result
+    )

@@ -1,0 +1,475 @@
+"""Monte-Carlo trajectories of particles in the frame of a decelerating trap.
+
+A particle of mass ``m`` feels ``F = -W'(|B|) grad|B| s(t) + m a(t) z_hat``: the trap force
+(switched on by the ramp ``s``) and the fictitious force of the deceleration ``a``. It is
+lost when it reaches the walls of the trap's box. :func:`track` integrates many particles
+at once with a symplectic splitting method and returns who stays and when the others left.
+
+Methods (``method=``): ``"verlet"``, velocity Verlet (kick-drift-kick, 2nd order), and
+``"yoshida4"``, the symmetric composition of three Verlet steps of sizes ``w1 h, w0 h,
+w1 h`` with ``w1 = 1 / (2 - 2^(1/3))``, ``w0 = -2^(1/3) w1`` (H. Yoshida, Phys. Lett. A
+150, 262 (1990); E. Forest and R. D. Ruth, Physica D 43, 105 (1990); from memory), 4th
+order. Time is advanced with the drifts, so a time-dependent force keeps the order.
+
+Speed: the particles are held as component rows (6, n) and stepped by whole-array numpy
+operations; particles that leave are frozen and removed from the working arrays. An
+:class:`~tiltwell.physics.fields.IdealQuadrupole` is evaluated inline (no per-call validation); a
+:class:`FieldMap` makes coil traps fast; any other source goes through ``Trap.force``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any, Protocol
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from .._base.display import html_table
+from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
+from .fieldmap import FieldMap
+from ..physics.fields import IdealQuadrupole
+from ..physics.species import LinearZeeman
+from ..wells.traps import Trap
+
+__all__ = ["FieldMap", "TrackingResult", "track"]
+
+FloatArray = NDArray[np.float64]
+Profile = Callable[[float], float]
+
+#: Most steps one call may take (the force schedule is tabulated per step).
+_MAX_STEPS = 10_000_000
+#: Below this |B|/B' [m] the quadrupole's cone tip is regularised (force magnitude stays <= the slope).
+_TIP = 1e-150
+#: Lost particles ride along until they are this fraction of the working set, then are removed.
+_COMPACT_FRACTION = 0.125
+
+
+class _Kernel(Protocol):
+    """``scale`` times the static trap acceleration [m/s^2] into ``out`` (3, n) at
+    ``positions`` (3, n) [m]; ``scratch`` (2, n) is free to use."""
+
+    compact_fraction: float
+
+    def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None: ...
+
+
+class _QuadrupoleKernel:
+    """``IdealQuadrupole`` inline: ``-W'(B' s) B' (x/4, y/4, z') / (m s)``, ``s = |B| / B'``.
+
+    The same formula as ``IdealQuadrupole.magnitude_gradient`` (zero where the field is
+    capped), without re-validating the positions at every step.
+    """
+
+    compact_fraction = _COMPACT_FRACTION
+
+    def __init__(self, trap: Trap, source: IdealQuadrupole) -> None:
+        self.gradient, self.center, self.mass = source.gradient, source.center, trap.mass
+        self.cap = source.max_field / source.gradient
+        zeeman = trap.species.zeeman
+        self.moment = zeeman.moment if type(zeeman) is LinearZeeman else None
+        self.zeeman = zeeman
+
+    def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None:
+        x, y, z = positions
+        size, factor = scratch[0], scratch[1]
+        np.multiply(x, x, out=size)
+        np.multiply(y, y, out=factor)
+        size += factor
+        size *= 0.25
+        shifted = z
+        if self.center != 0.0:
+            shifted = np.subtract(z, self.center, out=out[2])
+        np.multiply(shifted, shifted, out=factor)
+        size += factor
+        np.sqrt(size, out=size)
+        np.maximum(size, _TIP, out=factor)
+        if self.moment is not None:
+            np.divide(-scale * self.moment * self.gradient / self.mass, factor, out=factor)
+        else:
+            slope = np.asarray(self.zeeman.derivative(self.gradient * size))
+            np.divide(slope, factor, out=factor)
+            factor *= -scale * self.gradient / self.mass
+        if math.isfinite(self.cap):
+            np.putmask(factor, size > self.cap, 0.0)
+        np.multiply(factor, shifted, out=out[2])
+        factor *= 0.25
+        np.multiply(factor, x, out=out[0])
+        np.multiply(factor, y, out=out[1])
+
+
+class _MapKernel:
+    """A :class:`FieldMap` divided by the mass."""
+
+    compact_fraction = _COMPACT_FRACTION
+
+    def __init__(self, field_map: FieldMap, mass: float) -> None:
+        self.field_map, self.mass = field_map, mass
+
+    def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None:
+        self.field_map._interpolate(positions, out, scale / self.mass)
+
+
+class _TrapKernel:
+    """Any source, through ``Trap.force`` (lost particles are removed at once: outside the
+    box a coil source may be singular)."""
+
+    compact_fraction = 0.0
+
+    def __init__(self, trap: Trap) -> None:
+        self.trap = trap
+
+    def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None:
+        np.multiply(self.trap.force(positions.T, 0.0).T, scale / self.trap.mass, out=out)
+
+
+def _kernel(trap: Trap, field_map: FieldMap | None) -> _Kernel:
+    if field_map is not None:
+        return _MapKernel(field_map, trap.mass)
+    if type(trap.source) is IdealQuadrupole:
+        return _QuadrupoleKernel(trap, trap.source)
+    return _TrapKernel(trap)
+
+
+# --- integration schemes -----------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Scheme:
+    """A symmetric splitting ``K(k0) D(d1) K(k1) ... D(ds) K(ks)`` of the given order,
+    coefficients in units of the step; the force is evaluated after each drift, at the time
+    the drifts have reached (the last at the end of the step)."""
+
+    order: int
+    kicks: tuple[float, ...]
+    drifts: tuple[float, ...]
+
+
+_W1 = 1.0 / (2.0 - 2.0 ** (1.0 / 3.0))
+_W0 = -(2.0 ** (1.0 / 3.0)) * _W1
+_METHODS: dict[str, _Scheme] = {
+    "verlet": _Scheme(2, (0.5, 0.5), (1.0,)),
+    "yoshida4": _Scheme(4, (0.5 * _W1, 0.5 * (_W1 + _W0), 0.5 * (_W0 + _W1), 0.5 * _W1), (_W1, _W0, _W1)),
+}
+
+
+# --- the result ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class TrackingResult:
+    """What :func:`track` returns.
+
+    Attributes
+    ----------
+    times : ndarray, shape (K,)
+        Recorded times [s], from 0 to the duration.
+    survival : ndarray, shape (K,)
+        Fraction of all particles still inside the box at ``times``.
+    final : ndarray, shape (N, 6)
+        Phase-space points (x, y, z, vx, vy, vz) [m, m/s] at the end, or at the end of the
+        step in which a particle left the box (just outside it).
+    kept : ndarray of bool, shape (N,)
+        Whether each particle is still inside at the end.
+    lost_time : ndarray, shape (N,)
+        End of the step in which each particle left [s]; 0 for one that started outside,
+        ``inf`` for kept ones.
+    method : str
+        The integration method.
+    time_step : float
+        The step used [s]: ``duration / ceil(duration / time_step)``.
+    """
+
+    times: FloatArray
+    survival: FloatArray
+    final: FloatArray
+    kept: NDArray[np.bool_]
+    lost_time: FloatArray
+    method: str
+    time_step: float
+
+    @property
+    def fraction(self) -> float:
+        """Fraction of the particles kept to the end."""
+        return float(np.count_nonzero(self.kept)) / self.kept.size
+
+    @property
+    def binomial_error(self) -> float:
+        """Standard error ``sqrt(p (1 - p) / N)`` of :attr:`fraction` as an estimate."""
+        p = self.fraction
+        return math.sqrt(p * (1.0 - p) / self.kept.size)
+
+    def _repr_html_(self) -> str:
+        rows = [
+            ("particles", f"{self.kept.size}"),
+            ("kept", f"{self.fraction:.4g} ± {self.binomial_error:.2g}"),
+            ("duration", f"{self.times[-1] * 1e3:.4g} ms"),
+            ("method, step", f"{self.method}, {self.time_step * 1e6:.4g} µs"),
+        ]
+        return html_table("Tracking", rows)
+
+
+# --- the driver ---------------------------------------------------------------------------
+
+
+def track(
+    trap: Trap,
+    particles: ArrayLike,
+    duration: float,
+    time_step: float,
+    *,
+    deceleration: float | Profile = 0.0,
+    method: str = "verlet",
+    ramp: Profile | None = None,
+    field_map: FieldMap | None = None,
+    chunk: int = 100_000,
+    record_every: int = 1,
+    progress: bool = False,
+) -> TrackingResult:
+    """Track particles in the frame of a decelerating trap until they leave its box.
+
+    Parameters
+    ----------
+    trap : Trap
+        Source, species and box; a particle reaching the box's walls is lost.
+    particles : array_like, shape (N, 6)
+        Initial (x, y, z, vx, vy, vz) [m, m/s] in the trap frame, N >= 1. Particles
+        that start on or outside the walls are lost at time 0.
+    duration : float
+        Time to track [s], > 0.
+    time_step : float
+        Largest step [s], in (0, duration]; the step used is ``duration / ceil(duration /
+        time_step)`` (at most 1e7 steps).
+    deceleration : float or callable
+        ``a`` [m/s^2] (> 0 slows the trap, which moves to +z), or ``a(t)`` of the time [s].
+    method : {"verlet", "yoshida4"}
+        Velocity Verlet (2nd order, one force evaluation per step) or Yoshida's 4th-order
+        composition (three per step).
+    ramp : callable, optional
+        ``s(t)`` in [0, 1] multiplying the trap force (its switch-on); the fictitious force
+        ``m a(t)`` is not scaled. ``"yoshida4"`` evaluates ``a`` and ``s`` at times up to
+        0.36 steps outside each step (also before 0).
+    field_map : FieldMap, optional
+        Precomputed force of this trap (see :meth:`FieldMap.from_trap`), covering its box.
+    chunk : int
+        Particles integrated together, >= 1: bounds the memory (about 150 bytes each).
+    record_every : int
+        Steps between entries of ``times`` and ``survival``, >= 1 (the end is always one).
+    progress : bool
+        Show a tqdm progress bar over chunks x steps.
+
+    Returns
+    -------
+    TrackingResult
+
+    Notes
+    -----
+    Each particle is integrated independently by element-wise operations, so with the
+    built-in forces (ideal quadrupole, field map) the result does not depend on ``chunk``.
+    Particles are tested against the box after whole steps only.
+
+    Both methods assume a smooth force. At the zero of a quadrupole the force jumps (the
+    potential is a cone), and a fixed step that crosses it changes the energy by up to about
+    ``|F| v h`` (force, speed, step), with either sign: an orbit through the zero, e.g. on
+    the axis, random-walks in energy, and ``"yoshida4"``, with its longer sub-steps, does
+    worse there than ``"verlet"``. Keep ``|F| v h`` per crossing well below the depth
+    (thousands of steps per oscillation period for axis orbits).
+
+    Examples
+    --------
+    >>> import tiltwell
+    >>> trap = tiltwell.Trap(tiltwell.IdealQuadrupole(20.0, 0.5), tiltwell.species("Rb-87"),
+    ...                      ((-0.02, 0.02), (-0.02, 0.02), (-0.01, 0.01)))
+    >>> start = [[0.0, 0.0, 1e-3, 0.0, 0.0, 0.0], [0.0, 0.0, 0.0, 0.0, 0.0, 20.0]]
+    >>> result = track(trap, start, 0.01, 1e-5)
+    >>> result.kept.tolist()
+    [True, False]
+    """
+    if not isinstance(trap, Trap):
+        raise TiltwellError(f"trap must be a Trap; got {type(trap).__name__}")
+    state = as_finite_array(particles, "particles", "m, m/s")
+    if state.ndim != 2 or state.shape[1] != 6 or state.shape[0] < 1:
+        raise TiltwellError(f"particles [m, m/s] must have shape (N, 6) with N >= 1; got shape {state.shape}")
+    total = as_scalar(duration, "duration", "s", low=0.0, low_open=True)
+    largest = as_scalar(time_step, "time_step", "s", low=0.0, low_open=True, high=total)
+    if not isinstance(method, str) or method not in _METHODS:
+        raise TiltwellError(f"method must be one of {', '.join(map(repr, _METHODS))}; got {method!r}")
+    scheme = _METHODS[method]
+    if field_map is not None:
+        if not isinstance(field_map, FieldMap):
+            raise TiltwellError(f"field_map must be a FieldMap or None; got {type(field_map).__name__}")
+        if not field_map.covers(trap.bounds):
+            raise TiltwellError(f"field_map must cover the trap bounds {trap.bounds} m; it covers {field_map.bounds} m")
+    size = as_integer(chunk, "chunk", 1)
+    every = as_integer(record_every, "record_every", 1)
+    if not isinstance(progress, (bool, np.bool_)):
+        raise TiltwellError(f"progress must be True or False; got {progress!r}")
+    steps = math.ceil(total / largest * (1.0 - 1e-12))
+    if steps > _MAX_STEPS:
+        raise TiltwellError(f"duration / time_step must be at most {_MAX_STEPS:g} steps; got {steps:g}")
+    dt = total / steps
+    offsets = np.cumsum(scheme.drifts)
+    offsets[-1] = 1.0
+    moments = np.concatenate([[0.0], (np.arange(steps)[:, None] + offsets[None, :]).ravel()]) * dt
+    tilts = _profile(deceleration, "deceleration", "m/s^2", moments, -math.inf, math.inf)
+    scales = np.ones(moments.size) if ramp is None else _profile(ramp, "ramp", "1", moments, 0.0, 1.0, needs_callable=True)
+
+    count = state.shape[0]
+    final = state.copy()
+    lost_step = np.full(count, steps + 1, dtype=np.int64)
+    lower, upper = (np.array([pair[k] for pair in trap.bounds])[:, None] for k in (0, 1))
+    stepper = _Stepper(_kernel(trap, field_map), scheme, dt, tilts, scales, lower, upper, steps)
+    bar = _progress_bar(math.ceil(count / size) * steps) if progress else None
+    try:
+        for start in range(0, count, size):
+            stop = min(start + size, count)
+            stepper.run(state[start:stop], start, steps, final, lost_step, bar)
+    finally:
+        if bar is not None:
+            bar.close()
+
+    return _result(final, lost_step, steps, dt, every, method)
+
+
+def _result(final: FloatArray, lost_step: NDArray[np.int64], steps: int, dt: float, every: int,
+            method: str) -> TrackingResult:
+    """The :class:`TrackingResult` of a run of ``steps`` steps of ``dt`` [s], from the step at
+    whose end each particle left (0: it started outside; ``steps + 1``: it stayed), with the
+    survival recorded every ``every`` steps and at the end. Shared with
+    :func:`tiltwell.track_device`."""
+    count = lost_step.size
+    recorded = np.unique(np.append(np.arange(0, steps + 1, every), steps))
+    survival = (count - np.searchsorted(np.sort(lost_step), recorded, side="right")) / count
+    kept = lost_step > steps
+    lost_time = np.where(kept, np.inf, lost_step * dt)
+    arrays = (recorded * dt, survival, final, kept, lost_time)
+    for array in arrays:
+        array.setflags(write=False)
+    return TrackingResult(*arrays, method, dt)
+
+
+class _Stepper:
+    """Steps one chunk of particles with one scheme; holds the schedule and the box.
+
+    The working rows are positions and ``u = v dt`` (3 + 3, n), so a unit drift is one
+    addition. Adjacent kicks of consecutive steps are merged (the force at a step's end
+    serves both), and the forces come pre-multiplied by their kick weight, so a kick is one
+    addition too; velocities are re-synchronised (half the merged kick taken back) only for
+    particles that leave and at the end.
+    """
+
+    def __init__(
+        self, kernel: _Kernel, scheme: _Scheme, dt: float, tilts: FloatArray, scales: FloatArray,
+        lower: FloatArray, upper: FloatArray, steps: int,
+    ) -> None:
+        k = scheme.kicks
+        weights = np.concatenate([[k[0]], np.tile(np.append(k[1:-1], k[-1] + k[0]), steps)]) * dt * dt
+        self.kernel, self.drifts, self.dt = kernel, scheme.drifts, dt
+        self.pulls, self.pushes = (weights * scales).tolist(), (weights * tilts).tolist()
+        self.back = k[0] / (k[-1] + k[0])  # share of a merged kick that belongs to the next step
+        self.lower, self.upper = lower, upper
+
+    def inside(self, positions: FloatArray, flags: NDArray[np.bool_]) -> NDArray[np.bool_]:
+        """Whether each particle is strictly inside the box; ``flags`` (2, 3, n) is scratch."""
+        np.greater(positions, self.lower, out=flags[0])
+        np.less(positions, self.upper, out=flags[1])
+        flags[0] &= flags[1]
+        return np.logical_and(np.logical_and(flags[0, 0], flags[0, 1], out=flags[1, 0]), flags[0, 2], out=flags[1, 0])
+
+    def kick(self, rows: FloatArray, acceleration: FloatArray, scratch: FloatArray, moment: int) -> None:
+        """Force at schedule entry ``moment`` into ``acceleration`` (as a change of u), then kick."""
+        self.kernel(rows[:3], acceleration, scratch, self.pulls[moment])
+        rows[3:] += acceleration
+        rows[5] += self.pushes[moment]
+
+    def synchronised(self, rows: FloatArray, acceleration: FloatArray, moment: int) -> FloatArray:
+        """Phase-space points (n, 6) [m, m/s] at the end of the step ending at ``moment``."""
+        state = rows.T.copy()
+        state[:, 3:] -= self.back * acceleration.T
+        state[:, 5] -= self.back * self.pushes[moment]
+        state[:, 3:] /= self.dt
+        return state
+
+    def run(
+        self, initial: FloatArray, start: int, steps: int, final: FloatArray, lost_step: NDArray[np.int64], bar: Any
+    ) -> None:
+        """Integrate ``initial`` (n, 6), particles ``start...`` of the whole set, writing
+        ``final`` and ``lost_step`` for them; ``bar`` is a progress bar or None."""
+        n = initial.shape[0]
+        rows = np.ascontiguousarray(initial.T)
+        rows[3:] *= self.dt
+        index = np.arange(start, start + n)
+        buffers = np.empty((5, n))
+        flags = np.empty((2, 3, n), dtype=bool)
+        alive = self.inside(rows[:3], flags).copy()
+        lost_step[index[~alive]] = 0
+        rows, index = np.compress(alive, rows, axis=1), index[alive]  # compress keeps rows contiguous
+        living, riders = index.size, 0
+        alive = np.ones(living, dtype=bool)
+        acceleration = np.empty((3, living))
+        self.kick(rows, acceleration, buffers[:2, :living], 0)
+        drifts, moment = self.drifts, 0
+        for step in range(steps):
+            if living == 0:
+                if bar is not None:
+                    bar.update(steps - step)
+                break
+            width = rows.shape[1]
+            scratch, change = buffers[:2, :width], buffers[2:, :width]
+            for drift in drifts:
+                if drift == 1.0:
+                    rows[:3] += rows[3:]
+                else:
+                    np.multiply(rows[3:], drift, out=change)
+                    rows[:3] += change
+                moment += 1
+                self.kick(rows, acceleration, scratch, moment)
+            inside = self.inside(rows[:3], flags[:, :, :width])
+            if riders:
+                inside &= alive
+            if np.count_nonzero(inside) < living:
+                leaving = np.flatnonzero(alive & ~inside)
+                final[index[leaving]] = self.synchronised(rows[:, leaving], acceleration[:, leaving], moment)
+                lost_step[index[leaving]] = step + 1
+                alive[leaving] = False
+                living -= leaving.size
+                riders += leaving.size
+                if riders > self.kernel.compact_fraction * width:
+                    rows, acceleration = np.compress(alive, rows, axis=1), np.compress(alive, acceleration, axis=1)
+                    index, alive, riders = index[alive], alive[alive], 0
+            if bar is not None:
+                bar.update(1)
+        final[index[alive]] = self.synchronised(rows[:, alive], acceleration[:, alive], moment)
+
+
+def _profile(
+    value: Any, name: str, unit: str, times: FloatArray, low: float, high: float, needs_callable: bool = False
+) -> FloatArray:
+    """``value`` (a number, or a callable of the time [s]) at every one of ``times`` [s]."""
+    if not callable(value):
+        if needs_callable:
+            raise TiltwellError(f"{name} must be a callable {name}(t) of the time [s] or None; got {value!r}")
+        return np.full(times.size, as_scalar(value, name, unit, low=low, high=high))
+    values = np.empty(times.size)
+    for k, t in enumerate(times.tolist()):
+        try:
+            values[k] = float(value(t))
+        except (TypeError, ValueError):
+            raise TiltwellError(f"{name}(t) [{unit}] must return a real number; failed at t={t!r} s") from None
+    bad = ~(np.isfinite(values) & (values >= low) & (values <= high))
+    if np.any(bad):
+        k = int(np.argmax(bad))
+        raise TiltwellError(
+            f"{name}(t) [{unit}] must be finite and in [{low:g}, {high:g}]; got {values[k]!r} at t={times[k]!r} s"
+        )
+    return values
+
+
+def _progress_bar(total: int) -> Any:
+    try:  # imported only when asked for: no display code otherwise
+        from tqdm.auto import tqdm
+    except ImportError:
+        raise TiltwellError("progress=True needs the tqdm package (pip install tqdm); got progress=True") from None
+    return tqdm(total=total, desc="tracking", unit="step")

@@ -1,0 +1,237 @@
+"""What the explorer's coil-array part computes, from its settings and the main explorer's
+trap, species, deceleration and schedule; no widgets.
+
+The coil row is the device's: coil k at z_k = (k + 1/2) ``pitch`` (as in the timing
+table, :func:`tiltwell.coil_timing`), thin windings (every turn at the mean radius). Two
+library calls make the part:
+
+- the currents (cheap, every change): :func:`tiltwell.coils.array.waveforms` while the trap
+  crosses two pitches, from z = (h + 1) ``pitch`` to z = (h + 3) ``pitch`` (h = ``active / 2``;
+  midway between coils, so that it passes two hand-overs, at coils h + 1 and h + 2), near
+  the start of the deceleration where the ``active`` coils around the trap are all in
+  the row; on the first ``active + 3`` coils of the row (no further coil carries current
+  there);
+- the phase scan (about 0.05 s per phase, in the background):
+  :func:`tiltwell.coils.moving.moving_trap_phases` on ``active + 1`` coils, :data:`PHASES`
+  phases, in the box of the main explorer's trap.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .model import Model, physics_scenario
+from .._base.validation import TiltwellError
+from ..coils.array import CoilArray, CurrentPlan, trap_currents, waveforms
+from ..coils.moving import PhaseScan, moving_trap_phases
+from ..workflows.report import build
+from ..coils.schedule import Schedule
+from ..physics.species import Species
+from ..wells.traps import Trap
+
+__all__ = [
+    "PHASES",
+    "SAMPLES",
+    "TIMES",
+    "CoilSettings",
+    "Inputs",
+    "axial_gradient",
+    "current_array",
+    "current_window",
+    "currents",
+    "default_settings",
+    "device_coils",
+    "inputs_of",
+    "phase_array",
+    "problems",
+    "scan",
+]
+
+FloatArray = NDArray[np.float64]
+
+#: Phases across one pitch in the interactive scan (moving_trap_phases' default is 16;
+#: 12 phases with 501 samples per cut take 0.4-0.7 s on the demo on a shared 2-core machine).
+PHASES = 12
+#: Samples per 1-D cut in the interactive scan (areas change by ~1e-6 relative from 1001).
+SAMPLES = 501
+#: Time samples of the current view.
+TIMES = 201
+#: Pitch [m], current limit per turn [A] and active coils when the scenario gives none
+#: (invented values).
+DEFAULT_PITCH = 0.012
+DEFAULT_LIMIT = 500.0
+DEFAULT_ACTIVE = 4
+#: Default coil radius over the radius of the trap box's corner, sqrt(hx^2 + hy^2).
+BORE_MARGIN = 1.25
+#: Default turns bring the peak current per turn to this fraction of the limit, or below.
+LIMIT_USE = 0.8
+MAX_TURNS = 100_000
+
+
+@dataclass(frozen=True)
+class CoilSettings:
+    """The coil part's control values, SI: ``pitch`` and ``radius`` [m], ``turns``,
+    ``active`` coils, ``max_current`` per turn [A], wanted axial ``gradient`` [T/m]."""
+
+    pitch: float
+    radius: float
+    turns: int
+    active: int
+    max_current: float
+    gradient: float
+
+
+@dataclass(frozen=True, eq=False)
+class Inputs:
+    """What the part takes from the main explorer's current picture.
+
+    ``half_widths`` (hx, hy, hz) [m] is the main trap's box; ``reference`` the main
+    (rigid) trap's depth [J] and longitudinal and transverse acceptances [m·m/s] at the
+    same deceleration; ``schedule`` None when the main settings make none (``why`` says
+    why). ``species`` None when the main settings make no trap at all.
+    """
+
+    species: Species | None
+    deceleration: float
+    half_widths: tuple[float, float, float]
+    reference: tuple[float, float, float]
+    schedule: Schedule | None
+    why: str
+
+    @property
+    def scan_key(self) -> tuple[object, ...]:
+        name = None if self.species is None else self.species.name
+        return (name, self.deceleration, self.half_widths)
+
+    @property
+    def current_key(self) -> tuple[object, ...]:
+        s = self.schedule
+        return (None,) if s is None else (s.initial_velocity, s.final_velocity, s.deceleration)
+
+
+NO_INPUTS = Inputs(None, math.nan, (math.nan,) * 3, (math.nan,) * 3, None, "the main settings make no trap")
+
+
+def inputs_of(trap: Trap | None, deceleration: float, reference: tuple[float, float, float],
+              schedule: Schedule | None, why: str) -> Inputs:
+    """:class:`Inputs` from the main explorer's trap (None: no trap), deceleration
+    [m/s^2], reference numbers and schedule."""
+    if trap is None:
+        return NO_INPUTS
+    (x0, x1), (y0, y1), (z0, z1) = trap.bounds
+    halves = (0.5 * (x1 - x0), 0.5 * (y1 - y0), 0.5 * (z1 - z0))
+    return Inputs(trap.species, deceleration, halves, reference, schedule, why)
+
+
+def axial_gradient(trap: Trap) -> float:
+    """On-axis gradient [T/m] of ``trap``'s field at its zero (the box centre):
+    ``|B|(0, 0, h) / h`` with h = 1e-6 of the box's half length (the field is linear
+    there; exact for an ideal quadrupole, ~1e-12 relative for a coil pair)."""
+    (x0, x1), (y0, y1), (z0, z1) = trap.bounds
+    centre = np.array([0.5 * (x0 + x1), 0.5 * (y0 + y1), 0.5 * (z0 + z1)])
+    h = 0.5e-6 * (z1 - z0)
+    return float(trap.source.magnitude((centre + [0.0, 0.0, h])[None, :])[0] / h)
+
+
+def phase_array(settings: CoilSettings) -> CoilArray:
+    """The ``active + 1`` coils of the phase scan (thin windings, first at pitch / 2)."""
+    s = settings
+    return CoilArray(count=s.active + 1, pitch=s.pitch, radius=s.radius, first=0.5 * s.pitch, turns=s.turns,
+                     max_current=s.max_current, active=s.active)
+
+
+def current_array(settings: CoilSettings) -> CoilArray:
+    """The first ``active + 3`` coils of the row (thin windings, first at pitch / 2)."""
+    s = settings
+    return CoilArray(count=s.active + 3, pitch=s.pitch, radius=s.radius, first=0.5 * s.pitch, turns=s.turns,
+                     max_current=s.max_current, active=s.active)
+
+
+def device_coils(length: float, pitch: float) -> int:
+    """Coils of ``pitch`` [m] at (k + 1/2) pitch within a device ``length`` [m] long (as
+    :func:`tiltwell.coil_timing` counts them)."""
+    return max(math.floor((length * (1.0 + 1e-12) - 0.5 * pitch) / pitch) + 1, 0)
+
+
+def current_window(settings: CoilSettings, schedule: Schedule) -> FloatArray:
+    """:data:`TIMES` times [s] from when the trap passes z = (h + 1) pitch to when it
+    passes z = (h + 3) pitch, h = active / 2 (:meth:`tiltwell.Schedule.time_at`)."""
+    half = settings.active // 2
+    ends = schedule.time_at(np.array([half + 1.0, half + 3.0]) * settings.pitch)
+    return np.linspace(ends[0], ends[1], TIMES)
+
+
+def currents(settings: CoilSettings, schedule: Schedule) -> tuple[CoilArray, FloatArray, CurrentPlan]:
+    """The array, the times [s] and the :func:`tiltwell.coils.array.waveforms` drawn."""
+    array = current_array(settings)
+    times = current_window(settings, schedule)
+    return array, times, waveforms(array, schedule, settings.gradient, times)
+
+
+def scan(settings: CoilSettings, inputs: Inputs) -> PhaseScan:
+    """:func:`tiltwell.coils.moving.moving_trap_phases` at these settings (raises TiltwellError
+    when they make no scan)."""
+    if inputs.species is None:
+        raise TiltwellError(inputs.why)
+    return moving_trap_phases(phase_array(settings), settings.gradient, inputs.species,
+                              box_half_widths=inputs.half_widths, phases=PHASES,
+                              deceleration=inputs.deceleration, samples=SAMPLES)
+
+
+def problems(settings: CoilSettings, inputs: Inputs) -> tuple[list[str], list[str]]:
+    """What stops the phase scan and what stops the current view, in words."""
+    s, common = settings, []
+    if s.active < 2 or s.active % 2:
+        common.append(f"active coils must be an even number >= 2; got {s.active}")
+    if inputs.species is None:
+        return common + [inputs.why], common + [inputs.why]
+    hx, hy, _ = inputs.half_widths
+    corner = math.hypot(hx, hy)
+    scan_problems = list(common)
+    if not corner < s.radius:
+        scan_problems.append(
+            f"the bore (coil radius {s.radius * 1e3:.4g} mm) must exceed the corner of the trap box, "
+            f"sqrt(hx^2 + hy^2) = {corner * 1e3:.4g} mm (the main trap's box; the field is singular on a winding)")
+    current_problems = list(common)
+    schedule = inputs.schedule
+    if schedule is None:
+        current_problems.append(f"no schedule, so no currents to draw: {inputs.why}")
+    elif not common:
+        n, needed = device_coils(schedule.length, s.pitch), s.active + 3
+        if n < needed:
+            current_problems.append(
+                f"the device is {schedule.length:.3g} m long: {n} coils of pitch {s.pitch * 1e3:.4g} mm, fewer "
+                f"than the active + 3 = {needed} the current view needs ({s.active} active coils)")
+    return scan_problems, current_problems
+
+
+def default_settings(model: Model) -> CoilSettings:
+    """The part's starting point for the main explorer's loaded scenario.
+
+    With a ``[coils]`` section: its radius, turns, active coils, current limit and
+    gradient (each when given; the windings are taken as thin here). Otherwise pitch and
+    current limit from ``[deceleration]`` ``pitch`` and ``peak_current`` when given (else
+    :data:`DEFAULT_PITCH`, :data:`DEFAULT_LIMIT`); the trap's axial gradient; a radius
+    :data:`BORE_MARGIN` times the box corner's, rounded up to a millimetre; the fewest turns
+    that keep the peak current per turn at :data:`LIMIT_USE` of the limit.
+    """
+    base = model.base
+    trap = build(physics_scenario(base, model.reference, model.initial_settings())).trap
+    pitch = base.deceleration.pitch or DEFAULT_PITCH
+    limit = base.deceleration.peak_current or DEFAULT_LIMIT
+    gradient = axial_gradient(trap)
+    coils = base.coils
+    if coils is not None:
+        return CoilSettings(pitch, coils.radius, coils.turns, coils.active, coils.max_current or limit,
+                            coils.gradient or gradient)
+    (x0, x1), (y0, y1), _ = trap.bounds
+    radius = math.ceil(BORE_MARGIN * 0.5 * math.hypot(x1 - x0, y1 - y0) * 1e3) * 1e-3
+    one_turn = CoilArray(count=DEFAULT_ACTIVE + 1, pitch=pitch, radius=radius, active=DEFAULT_ACTIVE)
+    phases = one_turn.positions[DEFAULT_ACTIVE // 2] + np.linspace(0.0, pitch, 4 * TIMES)
+    peak = float(np.max(np.abs(trap_currents(one_turn, phases, gradient).currents)))
+    turns = min(max(math.ceil(peak / (LIMIT_USE * limit)), 1), MAX_TURNS)
+    return CoilSettings(pitch, radius, turns, DEFAULT_ACTIVE, limit, gradient)

@@ -1,0 +1,274 @@
+"""Longitudinal, transverse and 6-D acceptance of a trap, and how they fall with deceleration.
+
+- Longitudinal: the separatrix of the effective potential on the z axis (a particle on the
+  axis with no transverse velocity stays on it, so this 1-D cut is exact for it).
+- Transverse: the separatrix of the effective potential along x through the tilted bottom,
+  its energy capped at the 3-D escape energy (a particle may leave over the lowered front
+  barrier before it climbs the radial wall).
+- 6-D: the energetic acceptance (:mod:`tiltwell.wells.energetic`) of the tilted potential.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from .._base.display import html_table
+from .._base.validation import as_finite_array, as_integer, as_scalar
+from ..physics.constants import millikelvin
+from .energetic import (
+    KNOWN_ESCAPE_SLACK,
+    EnergeticAcceptance,
+    _component,
+    _touches_wall,
+    energetic_acceptance,
+    escape_level,
+)
+from .separatrix import Separatrix, separatrix
+from .traps import Trap
+
+__all__ = [
+    "AcceptanceCurve",
+    "TrapAcceptance",
+    "acceptance_curve",
+    "longitudinal_acceptance",
+    "trap_acceptance",
+    "transverse_acceptance",
+]
+
+FloatArray = NDArray[np.float64]
+
+#: Points per axis of the coarse grid that decides whether a lower 3-D exit exists.
+_CHECK_GRID = 33
+
+
+def longitudinal_acceptance(trap: Trap, deceleration: float = 0.0, samples: int = 2001) -> Separatrix:
+    """Separatrix of ``U_eff`` on the trap's axis, the well taken near the box's middle."""
+    a = as_scalar(deceleration, "deceleration", "m/s^2")
+    return _Sampler(trap, samples).longitudinal(a)
+
+
+def transverse_acceptance(
+    trap: Trap,
+    deceleration: float = 0.0,
+    samples: int = 2001,
+    *,
+    z: float | None = None,
+    max_energy: float | None = None,
+) -> Separatrix:
+    """Transverse acceptance: the separatrix of ``U_eff`` along x through ``(x_mid, y_mid, z)``.
+
+    By default ``z`` is the bottom of the tilted axis well and the orbit energy is capped
+    at the 3-D escape energy, as in :func:`trap_acceptance` (whose ``transverse`` this
+    returns). Giving ``z`` [m] or ``max_energy`` [J] returns that raw radial cut instead,
+    capped only at ``max_energy``. Unbound when the axis has no well.
+    """
+    a = as_scalar(deceleration, "deceleration", "m/s^2")
+    if z is None and max_energy is None:
+        return trap_acceptance(trap, a, samples=samples, include_6d=False).transverse
+    sampler = _Sampler(trap, samples)
+    if z is None:
+        axis = sampler.longitudinal(a)
+        if not axis.bound:
+            return axis
+        z = axis.z_bottom
+    if max_energy is not None:
+        max_energy = as_scalar(max_energy, "max_energy", "J")
+    return sampler.transverse(as_scalar(z, "z", "m"), a, max_energy)
+
+
+@dataclass(frozen=True, eq=False)
+class TrapAcceptance:
+    """Acceptances of one trap at one deceleration.
+
+    Attributes
+    ----------
+    deceleration : float
+        [m/s^2].
+    longitudinal, transverse : Separatrix
+        The axis and radial separatrices (areas in m·m/s).
+    escape_energy : float
+        3-D escape energy of the tilted well [J] (NaN when unbound).
+    volume : float
+        Energetic 6-D acceptance [(m·m/s)^3]; NaN when not computed.
+    energetic : EnergeticAcceptance or None
+        The 6-D grid result behind ``volume`` (its well region, for counting particles);
+        None when not computed or unbound.
+    """
+
+    deceleration: float
+    longitudinal: Separatrix
+    transverse: Separatrix
+    escape_energy: float
+    volume: float
+    energetic: EnergeticAcceptance | None = None
+
+    @property
+    def bound(self) -> bool:
+        return self.longitudinal.bound
+
+    def _repr_html_(self) -> str:
+        rows = [
+            ("deceleration", f"{self.deceleration:.4g} m/s²"),
+            ("longitudinal acceptance", f"{self.longitudinal.area * 1e3:.4g} mm·m/s"),
+            ("transverse acceptance", f"{self.transverse.area * 1e3:.4g} mm·m/s"),
+            ("6-D acceptance", f"{self.volume * 1e9:.4g} (mm·m/s)³"),
+            ("depth", f"{millikelvin(self.longitudinal.depth):.4g} mK (axis)"),
+        ]
+        return html_table("Trap acceptance", rows)
+
+
+def trap_acceptance(
+    trap: Trap,
+    deceleration: float = 0.0,
+    *,
+    samples: int = 2001,
+    include_6d: bool = True,
+    rtol: float = 1e-2,
+) -> TrapAcceptance:
+    """Longitudinal, transverse and (optionally) 6-D acceptance at one deceleration.
+
+    The 3-D escape energy caps the transverse orbit. With ``include_6d`` it comes from
+    the energetic 6-D grid; without, a coarse grid checks whether an exit lies clearly
+    below the 1-D barriers (else the lower of the axis and radial barriers is used).
+    """
+    a = as_scalar(deceleration, "deceleration", "m/s^2")
+    return _acceptances(_Sampler(trap, samples), np.array([a]), include_6d, rtol)[0]
+
+
+def _acceptances(sampler: _Sampler, values: FloatArray, include_6d: bool, rtol: float) -> list[TrapAcceptance]:
+    """The acceptances at each deceleration of ``values``, sharing the sampler's samples
+    and checking all 3-D exits in one batched labelling."""
+    trap = sampler.trap
+    axes = [sampler.longitudinal(a) for a in values]
+    sampler.prefetch_radial([axis.z_bottom for axis in axes if axis.bound])
+    # Capped at the axis barrier, the radial orbit's energy is min(axis, radial barrier):
+    # the 1-D bound on the 3-D escape energy, and usually the answer itself.
+    radials = [sampler.transverse(ax.z_bottom, a, ax.escape_energy) if ax.bound else ax for a, ax in zip(values, axes)]
+    caps = np.array([r.escape_energy if r.bound else ax.escape_energy for r, ax in zip(radials, axes)])
+    volumes = np.full(values.size, 0.0 if include_6d else np.nan)
+    escapes = caps.copy()
+    grids: list[EnergeticAcceptance | None] = [None] * values.size
+    bound = np.array([ax.bound for ax in axes], dtype=bool)
+    if include_6d:
+        for k in np.flatnonzero(bound):
+            six = energetic_acceptance(
+                trap.tilted(float(values[k])), trap.mass, trap.bounds,
+                rtol=rtol, near=(sampler.centre[0], sampler.centre[1], axes[k].z_bottom), known_escape=caps[k],
+            )
+            volumes[k], escapes[k], grids[k] = six.volume, six.escape_energy, six
+    elif bound.any():
+        escapes[bound] = sampler.escapes(values[bound], [axes[k] for k in np.flatnonzero(bound)], caps[bound])
+    results = []
+    for i, (a, axis, radial) in enumerate(zip(values, axes, radials)):
+        if axis.bound and escapes[i] != caps[i]:
+            radial = sampler.transverse(axis.z_bottom, a, escapes[i])
+        escape = float(escapes[i]) if axis.bound else float("nan")
+        results.append(
+            TrapAcceptance(float(a), axis, radial if axis.bound else axis, escape, float(volumes[i]), grids[i])
+        )
+    return results
+
+
+@dataclass(frozen=True, eq=False)
+class AcceptanceCurve:
+    """Acceptances against deceleration, as arrays of one length.
+
+    Attributes
+    ----------
+    decelerations : ndarray
+        [m/s^2].
+    longitudinal, transverse : ndarray
+        Areas [m·m/s] (0 where unbound).
+    volume : ndarray
+        6-D acceptance [(m·m/s)^3], NaN where not computed.
+    escape_energy, depth : ndarray
+        3-D escape energy [J] (NaN where unbound) and axis depth [J].
+    critical_deceleration : float
+        Where the axis well disappears [m/s^2].
+    """
+
+    decelerations: FloatArray
+    longitudinal: FloatArray
+    transverse: FloatArray
+    volume: FloatArray
+    escape_energy: FloatArray
+    depth: FloatArray
+    critical_deceleration: float
+
+
+def acceptance_curve(
+    trap: Trap,
+    decelerations: ArrayLike,
+    *,
+    samples: int = 1001,
+    include_6d: bool = False,
+    rtol: float = 1e-2,
+) -> AcceptanceCurve:
+    """Acceptances of ``trap`` at each of ``decelerations`` [m/s^2] (1-D array)."""
+    values = as_finite_array(decelerations, "decelerations", "m/s^2", ndim=1)
+    results = _acceptances(_Sampler(trap, samples), values, include_6d, rtol)
+    return AcceptanceCurve(
+        decelerations=values,
+        longitudinal=np.array([r.longitudinal.area for r in results]),
+        transverse=np.array([r.transverse.area for r in results]),
+        volume=np.array([r.volume for r in results]),
+        escape_energy=np.array([r.escape_energy for r in results]),
+        depth=np.array([r.longitudinal.depth for r in results]),
+        critical_deceleration=trap.critical_deceleration(samples),
+    )
+
+
+class _Sampler:
+    """The untilted potential of one trap sampled once and reused for every deceleration
+    (the tilt only adds ``-m a z``): the axis, radial cuts by height, a coarse 3-D grid."""
+
+    def __init__(self, trap: Trap, samples: int) -> None:
+        (x0, x1), (y0, y1), (z0, z1) = trap.bounds
+        self.trap = trap
+        self.mass = trap.mass
+        self.centre = (0.5 * (x0 + x1), 0.5 * (y0 + y1), 0.5 * (z0 + z1))
+        self.z = np.linspace(z0, z1, as_integer(samples, "samples", 3))
+        self.x = np.linspace(x0, x1, self.z.size)
+        self.axis = trap.potential(self.centre[0], self.centre[1], self.z)
+        self.radial: dict[float, FloatArray] = {}
+        self.axis_wells: dict[float, Separatrix] = {}
+        self.grid: tuple[FloatArray, FloatArray, list[FloatArray]] | None = None
+
+    def longitudinal(self, a: float) -> Separatrix:
+        if a not in self.axis_wells:
+            self.axis_wells[a] = separatrix(self.z, self.axis - self.mass * a * self.z, self.mass, near=self.centre[2])
+        return self.axis_wells[a]
+
+    def prefetch_radial(self, heights: list[float]) -> None:
+        """Sample the radial cuts at all new ``heights`` [m] in one field evaluation."""
+        new = sorted({h for h in heights if np.isfinite(h) and h not in self.radial})
+        if new:
+            values = self.trap.potential(self.x[None, :], self.centre[1], np.array(new)[:, None])
+            self.radial.update(zip(new, values))
+
+    def transverse(self, z: float, a: float, max_energy: float | None = None) -> Separatrix:
+        self.prefetch_radial([z])
+        cut = self.radial[z] - self.mass * a * z
+        return separatrix(self.x, cut, self.mass, near=self.centre[0], max_energy=max_energy)
+
+    def escapes(self, decelerations: FloatArray, axes: list[Separatrix], caps: FloatArray) -> FloatArray:
+        """3-D escape energies [J]: each ``cap`` unless a coarse grid shows an exit
+        clearly below it (one labelling per deceleration when none does; a bisection
+        over the grid values only where one does)."""
+        if self.grid is None:
+            axes3 = [np.linspace(low, high, _CHECK_GRID) for low, high in self.trap.bounds]
+            x, y, z = np.meshgrid(*axes3, indexing="ij", sparse=True)
+            self.grid = (self.trap.potential(x, y, z), z, axes3)
+        values0, z_grid, axes3 = self.grid
+        result = np.array(caps, dtype=np.float64)
+        for i, (a, axis, cap) in enumerate(zip(decelerations, axes, caps)):
+            tilted = values0 - self.mass * a * z_grid
+            near = (self.centre[0], self.centre[1], axis.z_bottom)
+            start = tuple(int(np.argmin(np.abs(ax - c))) for ax, c in zip(axes3, near))
+            bottom = axis.escape_energy - axis.depth
+            if _touches_wall(_component(tilted <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
+                result[i] = min(cap, escape_level(tilted, start))
+        return result

@@ -1,0 +1,409 @@
+"""A scenario's real coil row (its ``[coils]`` section): the array, the current waveforms
+that move the field zero along the schedule, the trap as it crosses one pitch, and one
+coil's hardware numbers, as one JSON-ready summary.
+
+:func:`coil_array` builds the :class:`~tiltwell.coils.array.CoilArray`; :func:`coil_run` plans
+the currents at the table's times; :func:`coil_summary` adds the phase scan and the
+hardware estimates. Everything stays in SI (the ``units`` map names each unit); the CLI
+shows depths in mK and acceptances in mm·m/s. No plotting, no file output here (the
+waveform table is written by :meth:`~tiltwell.coils.array.CurrentPlan.to_csv`). Every number
+sizes dangerous hardware, so the summary carries :data:`tiltwell.physics.hardware.ELECTRICAL_CAUTION`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .._base.validation import TiltwellError, as_integer
+from ..wells.acceptance import trap_acceptance
+from ..dynamics.capture import default_time_step
+from ..coils.array import CoilArray, CurrentPlan, trap_currents, waveforms
+from ..dynamics.compare import DeviceComparison, compare_device
+from ..physics.hardware import (
+    COPPER_DENSITY,
+    COPPER_RESISTIVITY,
+    COPPER_SPECIFIC_HEAT,
+    ELECTRICAL_CAUTION,
+    hardware_estimate,
+)
+from ..coils.moving import PhaseScan, moving_trap_phases
+from .report import build
+from .scenario import CoilsSection, Scenario, box_half_widths
+from ..coils.schedule import MAX_COILS, Schedule
+
+__all__ = ["CoilRun", "MAX_TABLE_VALUES", "UNITS", "coil_array", "coil_run", "coil_scan", "coil_summary", "device_box", "device_check"]
+
+FloatArray = NDArray[np.float64]
+
+#: Most numbers (points x coils) a waveform table may hold: a guard against a plan_step typed wrong.
+MAX_TABLE_VALUES = 20_000_000
+
+#: Trap positions planned at once (bounds the memory of the on-axis response).
+_CHUNK = 512
+
+#: SI unit of every number in a coil summary.
+UNITS: dict[str, str] = {
+    "count": "1",
+    "pitch": "m",
+    "first": "m",
+    "last": "m",
+    "active": "1",
+    "gradient": "T/m",
+    "peak_current": "A",
+    "limited_fraction": "1",
+    "achieved_gradient_min": "T/m",
+    "achieved_gradient_mean": "T/m",
+    "phases": "1",
+    "phase_deceleration": "m/s^2",
+    "depth_worst": "J",
+    "depth_mean": "J",
+    "ripple": "1",
+    "longitudinal_acceptance_worst": "m*m/s",
+    "longitudinal_acceptance_mean": "m*m/s",
+    "transverse_acceptance_worst": "m*m/s",
+    "transverse_acceptance_mean": "m*m/s",
+    "zero_offset_max": "m",
+    "duration": "s",
+    "plan_step": "s",
+    "plan_points": "1",
+    "pulse_duration_max": "s",
+    "pulse_duration_min": "s",
+    "wire_area": "m^2",
+    "inductance": "H",
+    "resistance": "Ohm",
+    "max_slope": "A/s",
+    "inductive_voltage": "V",
+    "handover_step": "A",
+    "rise_time": "s",
+    "handover_voltage": "V",
+    "current_squared_time": "A^2*s",
+    "temperature_rise": "K",
+    "temperature_rise_bound": "K",
+    "stored_energy": "J",
+}
+
+
+def _section(scenario: Scenario) -> CoilsSection:
+    if not isinstance(scenario, Scenario):
+        raise TiltwellError(f"scenario must be a Scenario; got {type(scenario).__name__}")
+    if scenario.coils is None:
+        raise TiltwellError("the scenario has no [coils] section (tiltwell keys lists its keys)")
+    return scenario.coils
+
+
+def coil_array(scenario: Scenario, schedule: Schedule | None = None) -> CoilArray:
+    """The coil row of ``scenario``'s ``[coils]`` section.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        Must have a ``[coils]`` section (which makes ``[deceleration] pitch`` required).
+    schedule : Schedule, optional
+        The scenario's schedule, when already built; only needed when the scenario gives a
+        deceleration rather than a length.
+
+    Raises
+    ------
+    TiltwellError
+        When the bore (radius - width/2) does not clear the trap box's transverse half widths,
+        or the row would need more than ``MAX_COILS`` coils.
+
+    Returns
+    -------
+    CoilArray
+        ``count = ceil(length / pitch) + active + 1`` coils from ``first = -(active/2) pitch``,
+        so the last one lies at or beyond ``length + (active/2) pitch`` and the trap zero,
+        running from z = 0 to z = length, always has ``active / 2`` coils on either side.
+        ``max_current`` is ``[coils] max_current``, else ``[deceleration] peak_current``.
+    """
+    coils = _section(scenario)
+    bore = coils.radius - 0.5 * coils.width
+    hx, hy, _ = box_half_widths(scenario.trap)
+    if bore <= max(hx, hy):
+        raise TiltwellError(
+            f"[coils] radius - width/2 [m] (the bore) must exceed the trap box's transverse half widths "
+            f"{hx:g}, {hy:g} m ([trap] half_widths, or 4 max_field/gradient for a quadrupole); got "
+            f"{bore:g} m from radius = {coils.radius!r}, width = {coils.width!r}")
+    pitch, limit = scenario.deceleration.pitch, coils.max_current or scenario.deceleration.peak_current
+    assert pitch is not None and limit is not None  # the scenario's own checks
+    length = scenario.deceleration.length
+    if length is None:
+        length = (build(scenario).schedule if schedule is None else schedule).length
+    count = math.ceil(length / pitch - 1e-9) + coils.active + 1
+    if count > MAX_COILS:
+        raise TiltwellError(
+            f"[deceleration] pitch [m] and length [m] need {count} coils, more than {MAX_COILS}; "
+            f"got pitch = {pitch!r}, length = {length:g}")
+    return CoilArray(count=count, pitch=pitch, radius=coils.radius, first=-0.5 * coils.active * pitch,
+                     turns=coils.turns, width=coils.width, height=coils.height, max_current=limit,
+                     active=coils.active, handover=coils.handover)
+
+
+@dataclass(frozen=True, eq=False)
+class CoilRun:
+    """The coil row driven along a scenario's schedule.
+
+    Attributes
+    ----------
+    array : CoilArray
+    gradient : float
+        Wanted axial gradient [T/m] (the current limit may lower it: ``plan.gradient``).
+    schedule : Schedule
+    times : ndarray, shape (M,)
+        Table times [s]: 0, plan_step, 2 plan_step, ... and the schedule's duration last.
+    plan : CurrentPlan
+        Currents per turn [A], shape (M, count), at ``schedule.position(times)``.
+    """
+
+    array: CoilArray
+    gradient: float
+    schedule: Schedule
+    times: FloatArray
+    plan: CurrentPlan
+
+
+def _gradient(scenario: Scenario) -> float:
+    coils = _section(scenario)
+    gradient = coils.gradient if coils.gradient is not None else scenario.trap.gradient
+    assert gradient is not None  # [coils] gradient is required unless the trap is a quadrupole
+    return gradient
+
+
+def coil_run(scenario: Scenario, schedule: Schedule | None = None) -> CoilRun:
+    """The currents of every coil from t = 0 to the end of the deceleration, every
+    ``[coils] plan_step`` seconds (:func:`tiltwell.coils.array.waveforms`)."""
+    coils = _section(scenario)
+    schedule = build(scenario).schedule if schedule is None else schedule
+    array = coil_array(scenario, schedule)
+    duration, step = schedule.duration, coils.plan_step
+    points = math.floor(duration / step * (1.0 - 1e-12)) + 2  # the steps, then the end point
+    if points * array.count > MAX_TABLE_VALUES:
+        raise TiltwellError(
+            f"[coils] plan_step [s] gives {points} points x {array.count} coils over {duration:g} s, more than "
+            f"{MAX_TABLE_VALUES} table values; choose plan_step >= "
+            f"{duration * array.count / MAX_TABLE_VALUES:.3g} s; got {step!r}")
+    times = np.append(step * np.arange(points - 1), duration)
+    gradient = _gradient(scenario)
+    parts = [waveforms(array, schedule, gradient, times[i:i + _CHUNK]) for i in range(0, times.size, _CHUNK)]
+    plan = CurrentPlan(*(np.concatenate([getattr(p, name) for p in parts])
+                         for name in ("positions", "currents", "gradient", "limited")))
+    return CoilRun(array, gradient, schedule, times, plan)
+
+
+def _pulses(run: CoilRun) -> tuple[FloatArray, FloatArray]:
+    """Pulse duration [s] and integral of I^2 dt [A^2 s] (trapezoid rule over the table) of
+    each coil that carries current."""
+    currents, times = run.plan.currents, run.times
+    used = np.flatnonzero(np.any(currents != 0.0, axis=0))
+    durations = np.empty(used.size)
+    for j, k in enumerate(used):
+        on = np.flatnonzero(currents[:, k])
+        durations[j] = times[on[-1]] - times[on[0]]
+    squared = currents[:, used] ** 2
+    action = np.sum(0.5 * (squared[1:] + squared[:-1]) * np.diff(times)[:, None], axis=0)
+    return durations, action
+
+
+def _slope(run: CoilRun, samples: int = 4001) -> float:
+    """Steepest |dI/dt| = |dI/dz| v [A/s] of any coil between hand-overs.
+
+    The currents at a given offset from a coil plane are the same in every pitch (an
+    unclipped window sees the same row), and the trap is fastest at the start, so the
+    first two pitches hold the steepest slope: sampled at ``samples`` points and beside each
+    coil plane there, with one-sided differences that stay inside one window.
+    """
+    array, schedule = run.array, run.schedule
+    span = min(2.0 * array.pitch, schedule.length)
+    h = 1e-6 * array.pitch
+    planes = array.positions[(array.positions >= 0.0) & (array.positions <= span)]
+    z = np.clip(np.concatenate([np.linspace(0.0, span, samples), planes - 2 * h, planes + 2 * h]), h, span - h)
+    middle, ahead, behind = (trap_currents(array, s, run.gradient).currents for s in (z, z + h, z - h))
+    same_ahead = np.all((middle != 0.0) == (ahead != 0.0), axis=1)
+    same_behind = np.all((middle != 0.0) == (behind != 0.0), axis=1)
+    forward = np.where(same_ahead, np.abs(ahead - middle).max(axis=1), 0.0)
+    backward = np.where(same_behind, np.abs(middle - behind).max(axis=1), 0.0)
+    speed = schedule.velocity(schedule.time_at(z))
+    return float(np.max(np.maximum(forward, backward) / h * speed))
+
+
+def _handover_step(run: CoilRun) -> float:
+    """Largest jump [A] of any coil's current where the trap passes a window boundary
+    (a coil plane, z = first + j pitch) between 0 and the length: with an abrupt hand-over
+    ([coils] handover = 0) the minimum-norm currents of the two windows differ there and
+    the waveform steps; a tapered one (handover > 0, active > 2) is continuous by
+    construction (tests/test_coilarray.py), so its step is 0."""
+    array, length = run.array, run.schedule.length
+    if array.handover > 0.0 and array.active > 2:
+        return 0.0
+    boundaries = array.positions[(array.positions > 0.0) & (array.positions < length)]
+    if boundaries.size == 0:
+        return 0.0
+    delta = 1e-9 * array.pitch
+    plan = trap_currents(array, np.concatenate([boundaries - delta, boundaries + delta]), run.gradient)
+    before, after = np.split(plan.currents, 2)
+    return float(np.abs(after - before).max())
+
+
+def _scan_numbers(scan: PhaseScan) -> dict[str, Any]:
+    mean_depth = float(np.mean(scan.depth))
+    return {
+        "phases": int(scan.phases.size),
+        "depth_worst": float(np.min(scan.depth)),
+        "depth_mean": mean_depth,
+        "ripple": scan.ripple if mean_depth > 0.0 else None,
+        "longitudinal_acceptance_worst": float(np.min(scan.longitudinal)),
+        "longitudinal_acceptance_mean": scan.mean_longitudinal,
+        "transverse_acceptance_worst": float(np.min(scan.transverse)),
+        "transverse_acceptance_mean": scan.mean_transverse,
+        "zero_offset_max": float(np.max(np.abs(scan.zero_offset))),
+    }
+
+
+def coil_scan(scenario: Scenario, run: CoilRun) -> PhaseScan:
+    """The row's trap at ``[coils] phases`` positions across one pitch, decelerating as the
+    scenario does (:func:`tiltwell.moving_trap_phases`; ``[simulation] samples`` per cut)."""
+    species = build(scenario).species
+    return moving_trap_phases(run.array, run.gradient, species, box_half_widths=box_half_widths(scenario.trap),
+                              phases=_section(scenario).phases, deceleration=run.schedule.deceleration,
+                              samples=scenario.simulation.samples)
+
+
+def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan | None = None) -> dict[str, Any]:
+    """All numbers of the scenario's coil row as a JSON-ready dict (SI) with a ``units`` map
+    and the ``caution``.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        With a ``[coils]`` section.
+    run : CoilRun, optional
+        A :func:`coil_run` of the same scenario, to reuse.
+    scan : PhaseScan, optional
+        Its :func:`coil_scan`, to reuse.
+
+    Returns
+    -------
+    dict
+        The row (``count``, ``pitch``, ``first``, ``last``, ``active``); the waveforms
+        (``peak_current`` = max |I| over the run, ``limited_fraction`` of the planned points
+        where the current limit lowered the gradient, ``achieved_gradient_min`` and
+        ``_mean``); the phase scan at the schedule's deceleration (depth, longitudinal and
+        transverse acceptance, worst and mean over ``[coils] phases`` positions across one
+        pitch, ``ripple`` = peak-to-peak depth over its mean, ``zero_offset_max``); and one
+        coil's hardware numbers: ``pulse_duration_max``/``_min`` (first to last point with
+        current, to within one plan_step), ``inductance`` and ``resistance``
+        (:func:`tiltwell.hardware_estimate`, a ring whose round cross-section has the
+        winding's area), ``max_slope`` (steepest |dI/dt| = |dI/dz| v between hand-overs) and
+        ``inductive_voltage`` = L times it, ``handover_step`` (largest jump of a coil's
+        current where the active coils change, from the currents just before and after)
+        and ``handover_voltage`` = L step / ``[deceleration] rise_time`` (None when that is
+        0), ``current_squared_time``
+        (integral of I^2 dt of the hottest coil) and its adiabatic ``temperature_rise``,
+        ``temperature_rise_bound`` (the peak current for the whole longest pulse) and
+        ``stored_energy`` = L I^2 / 2.
+
+    Notes
+    -----
+    The voltages use the self-inductance only; the mutual inductance of the neighbouring,
+    simultaneously switched coils adds to them. Copper at 20 °C, no cooling during a pulse.
+    """
+    coils = _section(scenario)
+    equivalent = math.sqrt(coils.width * coils.height / math.pi)  # round section of the same area
+    if equivalent >= coils.radius:
+        raise TiltwellError(f"[coils] width x height [m^2] must be smaller than pi radius^2 for the inductance "
+                            f"estimate; got {coils.width!r} x {coils.height!r} with radius {coils.radius!r}")
+    run = coil_run(scenario) if run is None else run
+    array, plan = run.array, run.plan
+    scan = coil_scan(scenario, run) if scan is None else scan
+    durations, action = _pulses(run)
+    slope, step = _slope(run), _handover_step(run)
+    peak = float(np.abs(plan.currents).max())
+    wire_area = coils.fill_factor * coils.width * coils.height / coils.turns
+    longest = float(durations.max())
+    rise = scenario.deceleration.rise_time
+    estimate = hardware_estimate(peak, longest, wire_area, turns=coils.turns, coil_radius=coils.radius,
+                                 rise_time=min(rise if rise > 0.0 else coils.plan_step, 0.5 * longest),
+                                 winding_radius=equivalent)
+    inductance = estimate.inductance
+    per_action = COPPER_RESISTIVITY / (wire_area**2 * COPPER_DENSITY * COPPER_SPECIFIC_HEAT)  # K per A^2 s
+    summary: dict[str, Any] = {
+        "count": array.count,
+        "pitch": array.pitch,
+        "first": array.first,
+        "last": float(array.positions[-1]),
+        "active": array.active,
+        "gradient": run.gradient,
+        "peak_current": peak,
+        "limited_fraction": float(np.mean(plan.limited)),
+        "achieved_gradient_min": float(plan.gradient.min()),
+        "achieved_gradient_mean": float(plan.gradient.mean()),
+        "phase_deceleration": run.schedule.deceleration,
+        **_scan_numbers(scan),
+        "duration": run.schedule.duration,
+        "plan_step": coils.plan_step,
+        "plan_points": int(run.times.size),
+        "pulse_duration_max": longest,
+        "pulse_duration_min": float(durations.min()),
+        "wire_area": wire_area,
+        "inductance": inductance,
+        "resistance": estimate.resistance,
+        "max_slope": slope,
+        "inductive_voltage": inductance * slope,
+        "handover_step": step,
+        "rise_time": rise,
+        "handover_voltage": inductance * step / rise if rise > 0.0 else None,
+        "current_squared_time": float(action.max()),
+        "temperature_rise": float(action.max()) * per_action,
+        "temperature_rise_bound": estimate.temperature_rise,
+        "stored_energy": estimate.stored_energy,
+        "caution": ELECTRICAL_CAUTION,
+    }
+    for key, value in summary.items():  # JSON has no NaN: an unbound phase gives None
+        if isinstance(value, float) and not math.isfinite(value):
+            summary[key] = None
+    summary["units"] = {key: UNITS[key] for key in summary if key in UNITS}
+    return summary
+
+
+def device_check(scenario: Scenario, particles: int | None = None, *, run: CoilRun | None = None,
+                 progress: bool = False) -> DeviceComparison:
+    """The scenario's beam through its coil row and through the row's rigid twin.
+
+    ``particles`` (default ``[simulation] particles``) are drawn from the beam at switch-on
+    with ``[simulation] seed``, in the trap frame as for the captured fraction, and tracked
+    from switch-on to the end of the deceleration by :func:`tiltwell.compare_device`: the
+    device run follows the currents planned every ``[coils] plan_step`` (the waveform
+    table) and interpolated linearly between, as a pulse generator would play them. Time
+    step: ``[simulation] time_step``, else the rigid trap's default
+    (:func:`tiltwell.dynamics.capture.default_time_step`). Both runs lose particles at the walls of
+    :func:`device_box`. ``run``: a :func:`coil_run` of the same scenario, to reuse.
+    """
+    coils = _section(scenario)
+    built = build(scenario)
+    run = coil_run(scenario, built.schedule) if run is None else run
+    count = scenario.simulation.particles if particles is None else as_integer(particles, "particles", 1)
+    step = scenario.simulation.time_step
+    if step is None:
+        acceptance = trap_acceptance(built.trap, built.schedule.deceleration, include_6d=False)
+        step = default_time_step(acceptance, built.species.mass)
+    sample = built.beam.sample(count, seed=scenario.simulation.seed)
+    sample[:, 5] -= built.mismatch
+    return compare_device(run.array, built.species, sample, schedule=built.schedule, gradient=run.gradient,
+                          time_step=min(step, built.schedule.duration), box_half_widths=device_box(scenario, run.array),
+                          plan_times=run.times, phases=coils.phases, progress=progress)
+
+
+def device_box(scenario: Scenario, array: CoilArray) -> tuple[float, float, float]:
+    """Half widths (hx, hy, hz) [m] of the trap box, with hx and hy scaled down together
+    where needed so the box's corner stays inside 0.99 of the bore (radius - width / 2):
+    the coil field is tabulated only inside the bore, and a particle beyond it would be in
+    the winding."""
+    hx, hy, hz = box_half_widths(scenario.trap)
+    room = 0.99 * (array.radius - 0.5 * array.width)
+    scale = min(1.0, room / math.hypot(hx, hy))
+    return (hx * scale, hy * scale, hz)
