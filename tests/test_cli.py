@@ -114,7 +114,8 @@ def test_sweep_writes_csv(tmp_path) -> None:  # type: ignore[no-untyped-def]
     assert main(["sweep", str(path), "--start", "2e4", "--stop", "6e4", "--points", "3", "--out", str(out),
                  "--quiet"]) == 0
     lines = out.read_text().splitlines()
-    assert len(lines) == 4 and lines[0].startswith("deceleration [m/s^2]")
+    assert all(line.startswith("# ") for line in lines[:3])  # title, units, note
+    assert len(lines) == 3 + 4 and lines[3].startswith("deceleration [m/s^2]")
 
 
 @pytest.mark.parametrize(
@@ -152,6 +153,7 @@ def test_run_writes_the_coil_timing_table(tmp_path) -> None:  # type: ignore[no-
     out = tmp_path / "timing.csv"
     assert main(["run", str(path), "--timing", str(out)]) == 0
     lines = [line for line in out.read_text().splitlines() if not line.startswith("#")]
+    assert lines[0].split(",")[1:3] == ["position [m]", "passing_time [s]"]
     rows = np.array([[float(v) for v in line.split(",")[1:3]] for line in lines[1:]])
     plan = build(sc.load(path)).schedule
     v0, a = plan.initial_velocity, plan.deceleration

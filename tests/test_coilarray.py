@@ -228,13 +228,13 @@ def test_csv_round_trip(tmp_path: Path) -> None:
     text = target.read_text()
     assert tiltwell.ELECTRICAL_CAUTION in text
     assert "units:" in text
-    data = np.loadtxt(target, delimiter=",", comments="#")
+    data = np.loadtxt(target, delimiter=",", skiprows=4)  # three comment lines, then the header row
     used = np.flatnonzero(np.any(plan.currents != 0.0, axis=0))
     assert data.shape == (times.size, 1 + used.size)
     np.testing.assert_array_equal(data[:, 0], times)
     np.testing.assert_array_equal(data[:, 1:], plan.currents[:, used])
-    columns = [line for line in text.splitlines() if line.startswith("# columns:")][0]
-    assert columns.split(": ")[1].split(",") == ["time_s", *(f"coil_{k}_A" for k in used)]
+    header = text.splitlines()[3]
+    assert header.split(",") == ["time [s]", *(f"coil_{k} [A]" for k in used)]
 
 
 def test_csv_write_is_atomic(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:

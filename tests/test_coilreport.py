@@ -92,11 +92,10 @@ def printed(tmp_path_factory: pytest.TempPathFactory) -> tuple[dict[str, Any], n
     with contextlib.redirect_stdout(stream):
         assert main(["coils", str(DEMO_SCENARIO), "--json", "--csv", str(out)]) == 0
     summary = json.loads(stream.getvalue())
-    table = np.loadtxt(out, delimiter=",", comments="#")
-    header = next(line for line in out.read_text().splitlines() if line.startswith("# columns:"))
-    columns = header.split(":", 1)[1].strip().split(",")
-    assert columns[0] == "time_s"
-    indices = np.array([int(name.split("_")[1]) for name in columns[1:]])
+    table = np.loadtxt(out, delimiter=",", skiprows=4)  # three comment lines and the header row
+    columns = out.read_text().splitlines()[3].split(",")
+    assert columns[0] == "time [s]" and all(name.endswith(" [A]") for name in columns[1:])
+    indices = np.array([int(name.removeprefix("coil_").removesuffix(" [A]")) for name in columns[1:]])
     return summary, table, indices
 
 

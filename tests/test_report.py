@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import csv
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -11,6 +13,10 @@ from scipy import constants
 
 from tiltwell import scenario as sc
 from tiltwell import species, summarise, sweep
+from tiltwell.coils.array import CoilArray, waveforms
+from tiltwell.coils.schedule import coil_timing, constant_deceleration
+from tiltwell.physics.hardware import ELECTRICAL_CAUTION
+from tiltwell.workflows.report import UNITS
 from tiltwell.workflows.sweep import COLUMNS, sweep_csv
 
 DEMO = Path(sc.__file__).with_name("data") / "demo.toml"
@@ -90,9 +96,10 @@ def test_sweep_over_lengths_and_csv(tmp_path: Path) -> None:
     path = tmp_path / "sweep.csv"
     text = sweep_csv(rows, path)
     lines = path.read_text().splitlines()
-    assert lines[0].split(",")[0] == "deceleration [m/s^2]" and len(lines) == 3
+    assert all(line.startswith("# ") for line in lines[:3])  # title, units, note
+    assert lines[3].split(",")[0] == "deceleration [m/s^2]" and len(lines) == 3 + 3
     assert text == path.read_text()
-    assert len(lines[1].split(",")) == len(COLUMNS)
+    assert len(lines[4].split(",")) == len(COLUMNS)
 
 
 @pytest.mark.parametrize(
@@ -114,3 +121,76 @@ def test_time_of_flight_in_the_summary() -> None:
     assert summary["arrival_time_mean"] == pytest.approx(0.2 / 20.0, rel=0.2)
     assert 0 < summary["arrival_time_rms"] < summary["arrival_time_mean"]
     assert summary["units"]["arrival_time_mean"] == "s"
+
+
+# ---- one layout for every table tiltwell writes ---------------------------------------------
+
+#: A header cell: a lower-case name, one space, the unit in brackets (no comma, no bracket inside).
+HEADER_CELL = re.compile(r"^[a-z][a-z0-9_]* \[[^\[\],]+\]$")
+
+
+def _tables(tmp_path: Path) -> dict[str, tuple[Path, tuple[str, ...], np.ndarray]]:
+    """The coil timing, the coil waveforms and a sweep, written by tiltwell, each with its
+    expected numpy column names and the numbers (rows x columns) it was given."""
+    schedule = constant_deceleration(400.0, 40.0, deceleration=8e4)  # invented numbers
+    timing = coil_timing(schedule, 0.05, peak_current=300.0, rise_time=5e-6)
+    timing.to_csv(tmp_path / "timing.csv")
+    size = timing.positions.size
+    timing_values = np.column_stack([np.arange(size), timing.positions, timing.passing_times, timing.on_times,
+                                     timing.off_times, np.full(size, 300.0), np.full(size, timing.rise_time)])
+    row = CoilArray(count=9, pitch=0.005, radius=0.006, first=-0.004, max_current=500.0)  # invented coil row
+    times = np.linspace(0.0, 0.004, 9)
+    plan = waveforms(row, constant_deceleration(12.0, 2.0, deceleration=2500.0), 2.0, times)
+    plan.to_csv(tmp_path / "waveforms.csv", times)
+    used = np.flatnonzero(np.any(plan.currents != 0.0, axis=0))
+    rows = [{name: (j + 1) * 10.0 ** (i - 3) for j, name in enumerate(COLUMNS)} for i in range(4)]  # invented
+    for i, values in enumerate(rows):
+        values["coils"] = 10 + i
+    sweep_csv(rows, tmp_path / "sweep.csv")
+    sweep_names = tuple(name + "_" + "".join(c for c in UNITS.get(name, "1") if c.isalnum()) for name in COLUMNS)
+    return {
+        "timing": (tmp_path / "timing.csv", ("index_1", "position_m", "passing_time_s", "on_time_s", "off_time_s",
+                                             "peak_current_A", "rise_time_s"), timing_values),
+        "waveforms": (tmp_path / "waveforms.csv", ("time_s", *(f"coil_{k}_A" for k in used)),
+                      np.column_stack([times, plan.currents[:, used]])),
+        "sweep": (tmp_path / "sweep.csv", sweep_names, np.array([[r[name] for name in COLUMNS] for r in rows])),
+    }
+
+
+def test_every_table_has_comments_then_one_unit_header_row(tmp_path: Path) -> None:
+    """Read back with the standard library's csv module: three ``# `` lines (title, units,
+    caution or note), one header row of ``name [unit]`` cells, then the numbers bit for bit."""
+    for kind, (path, _, values) in _tables(tmp_path).items():
+        lines = path.read_text(encoding="utf-8").splitlines()
+        assert all(line.startswith("# ") for line in lines[:3]) and not lines[3].startswith("#"), kind
+        assert lines[1].startswith("# units: SI"), kind
+        header, *body = csv.reader(lines[3:])
+        assert len(header) == values.shape[1] and all(HEADER_CELL.match(cell) for cell in header), (kind, header)
+        np.testing.assert_array_equal(np.array(body, dtype=float), values, err_msg=kind)
+        if kind != "sweep":  # the two tables that size hardware carry the caution
+            assert lines[2] == f"# {ELECTRICAL_CAUTION}", kind
+
+
+def test_numpy_reads_every_table_in_one_line(tmp_path: Path) -> None:
+    """The reading recipes the docstrings give: ``numpy.genfromtxt(path, delimiter=",",
+    skip_header=3, names=True)`` (named columns) and ``numpy.loadtxt(path, delimiter=",",
+    skiprows=4)``; ``genfromtxt(..., comments="#", names=True)`` does not work (it takes its
+    names from the first comment line), so it is not offered."""
+    for kind, (path, names, values) in _tables(tmp_path).items():
+        named = np.genfromtxt(path, delimiter=",", skip_header=3, names=True)
+        assert named.dtype.names == names, kind
+        np.testing.assert_array_equal(np.column_stack([named[name] for name in names]), values, err_msg=kind)
+        np.testing.assert_array_equal(np.loadtxt(path, delimiter=",", skiprows=4, ndmin=2), values, err_msg=kind)
+        with pytest.raises(ValueError):
+            np.genfromtxt(path, delimiter=",", comments="#", names=True)
+
+
+def test_a_sweep_value_not_computed_is_an_empty_cell(tmp_path: Path) -> None:
+    rows = [{name: 1.0 for name in COLUMNS}]
+    rows[0]["captured_fraction_mc"] = None
+    text = sweep_csv(rows)
+    assert text.splitlines()[4].split(",")[COLUMNS.index("captured_fraction_mc")] == ""
+    path = tmp_path / "sweep.csv"
+    path.write_text(text)
+    named = np.genfromtxt(path, delimiter=",", skip_header=3, names=True)
+    assert np.isnan(named["captured_fraction_mc_1"]) and named["deceleration_ms2"] == 1.0

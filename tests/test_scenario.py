@@ -2,13 +2,17 @@
 
 from __future__ import annotations
 
+import dataclasses
 import os
+import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from tiltwell import TiltwellError
 from tiltwell import scenario as sc
+from tiltwell.workflows.keys import spec_of
 
 DEMO = Path(sc.__file__).with_name("data") / "demo.toml"
 
@@ -166,3 +170,83 @@ def test_describe_lists_the_coils_keys() -> None:
     assert "[coils] (optional section)" in text and "ceil(length / pitch) + active + 1 coils" in text
     for line in ("radius [m] in (0, 1]", "plan_step [s] in (0, 1] (default 2e-06)", "max_current [A]", "phases"):
         assert line in text.split("[coils]")[1]
+
+
+# ---- one range text for messages and for `tiltwell keys` -----------------------------------
+
+
+def _bounded_keys() -> list[tuple[str, str]]:
+    """(section, key) of every key whose value(s) have a finite upper end, from the listing."""
+    found, section = [], ""
+    for line in sc.describe().splitlines():
+        if line.startswith("["):
+            section = line.split("]")[0][1:]
+        elif " in [" in line or " in (" in line:
+            found.append((section, line.split()[0]))
+    return found
+
+
+def _kind(section: str, name: str) -> str:
+    cls = type(getattr(sc.load(DEMO), section))
+    return next(spec_of(item).kind for item in dataclasses.fields(cls) if item.name == name)
+
+
+@pytest.mark.parametrize(("section", "name"), _bounded_keys(), ids=lambda v: str(v))
+def test_an_out_of_range_value_is_reported_with_the_listed_range(section: str, name: str) -> None:
+    """Twice the upper end plus one is outside every range; the message names the key and
+    shows the range exactly as `tiltwell keys` lists it."""
+    listed = next(line for line in sc.describe().split(f"[{section}]")[1].splitlines()
+                  if line.startswith(f"  {name} "))
+    match = re.search(r" in ([\[(][^\])]*[\])])", listed)
+    assert match is not None
+    allowed = match.group(1)
+    high = float(allowed[1:-1].split(", ")[1])
+    kind = _kind(section, name)
+    bad: object = int(2 * high) + 1 if kind.endswith("integer") else 2 * high + 1.0
+    bad = {"triple": [bad] * 3, "pairs": [[bad, bad]]}.get(kind, bad)
+    data = sc.load(DEMO).to_dict()
+    data.setdefault(section, {})[name] = bad
+    with pytest.raises(TiltwellError) as caught:
+        sc.from_dict(data)
+    assert f"[{section}] {name}" in str(caught.value) and f"in {allowed}" in str(caught.value)
+
+
+def test_listing_shows_kind_range_and_required() -> None:
+    text = sc.describe()
+    coils = text.split("[coils]")[1]
+    assert "  turns in [1, 100000] (required): turns per coil" in coils
+    assert "  active in [2, 1000], even (default 4): coils carrying current at once" in coils
+    assert "  kind one of quadrupole, coils (required): the trap" in text
+    assert "  seed in [0, 9223372036854775807] (default 0): random seed" in text
+
+
+@pytest.mark.parametrize(
+    ("section", "name", "value", "words"),
+    [
+        ("beam", "temperature", "300", ["[beam] temperature [K]", "real number", "'300'"]),
+        ("beam", "temperature", True, ["[beam] temperature [K]", "real number", "True"]),
+        ("simulation", "track", 1, ["[simulation] track", "true or false", "1"]),
+        ("species", "name", " ", ["[species] name", "non-empty string"]),
+        ("trap", "half_widths", [0.01, 0.01], ["[trap] half_widths [m]", "three numbers [x, y, z]"]),
+        ("trap", "half_widths", [0.01, 0.01, 0.0], ["[trap] half_widths[2] [m]", "(0, 10]", "0.0"]),
+        ("beam", "apertures", [[0.2, -1.0]], ["[beam] apertures[0][1] [m]", "(0, 100]", "-1.0"]),
+        ("simulation", "method", "yoshida", ["[simulation] method", "verlet, yoshida4", "did you mean 'yoshida4'"]),
+    ],
+    ids=["number-as-text", "bool-as-number", "number-as-bool", "blank-name", "short-triple", "triple-item",
+         "pair-item", "bad-choice"],
+)
+def test_each_kind_is_checked_by_the_validation_helper(section: str, name: str, value: object,
+                                                       words: list[str]) -> None:
+    data = sc.load(DEMO).to_dict()
+    data.setdefault(section, {})[name] = value
+    with pytest.raises(TiltwellError) as caught:
+        sc.from_dict(data)
+    for word in words:
+        assert word in str(caught.value)
+
+
+def test_numpy_numbers_from_widgets_are_accepted_as_plain_python_values() -> None:
+    changed = sc.load(DEMO).replace("trap", gradient=np.float64(200.0)).replace("simulation", particles=np.int64(50))
+    assert changed.trap.gradient == 200.0 and type(changed.trap.gradient) is float
+    assert changed.simulation.particles == 50 and type(changed.simulation.particles) is int
+    assert sc.loads(sc.dumps(changed)) == changed

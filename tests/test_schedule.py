@@ -226,7 +226,9 @@ def test_timing_csv_round_trip(tmp_path: Path) -> None:
     path = tmp_path / "timing.csv"
     timing.to_csv(path)
     comments, header, rows = _read_table(path)
-    assert header == ["index", "position_m", "passing_time_s", "on_time_s", "off_time_s", "peak_current_A", "rise_time_s"]
+    assert header == ["index [1]", "position [m]", "passing_time [s]", "on_time [s]", "off_time [s]",
+                      "peak_current [A]", "rise_time [s]"]
+    assert len(comments) == 3 and path.read_text(encoding="utf-8").splitlines()[:3] == comments  # comments first
     assert ELECTRICAL_CAUTION in " ".join(line.lstrip("# ") for line in comments)
     assert "can kill" in ELECTRICAL_CAUTION and "licensed" in ELECTRICAL_CAUTION
     table = np.loadtxt([",".join(row) for row in rows], delimiter=",", ndmin=2)  # numpy's own parser
@@ -244,7 +246,7 @@ def test_waveform_csv_round_trip(tmp_path: Path) -> None:
     path = tmp_path / "waveform.csv"
     timing.waveform_csv(path, times)
     comments, header, rows = _read_table(path)
-    assert header[0] == "time_s" and header[1:] == [f"coil_{k}_A" for k in range(timing.positions.size)]
+    assert header[0] == "time [s]" and header[1:] == [f"coil_{k} [A]" for k in range(timing.positions.size)]
     assert any("can kill" in line for line in comments)
     table = np.array(rows, dtype=float)
     np.testing.assert_array_equal(table[:, 0], times)

@@ -1,7 +1,9 @@
 """Checks made once, at the public boundary; every message names the argument.
 
-Each helper returns the value converted to what the computation wants (a float or a
-float64 array), so a public function validates and converts in one line per argument.
+Each helper returns the value converted to what the computation wants (a float, an int,
+a tuple of floats or a float64 array), so a public function validates and converts in one
+line per argument. Allowed ranges are printed by :class:`Interval` alone, so a message and
+a listing of keys (``tiltwell keys``) show the same text.
 """
 
 from __future__ import annotations
@@ -9,21 +11,28 @@ from __future__ import annotations
 import difflib
 import math
 import numbers
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 __all__ = [
+    "Interval",
     "TiltwellError",
     "look_up",
+    "as_boolean",
+    "as_choice",
     "as_finite_array",
     "as_integer",
     "as_points",
+    "as_real_table",
+    "as_real_tuple",
     "as_scalar",
     "as_bounds",
     "as_increasing",
+    "as_text",
 ]
 
 
@@ -36,6 +45,56 @@ def _describe(value: Any) -> str:
     return text if len(text) <= 60 else text[:57] + "..."
 
 
+def _label(name: str, unit: str) -> str:
+    """``name [unit]``, or ``name`` alone for an empty unit."""
+    return f"{name} [{unit}]" if unit else name
+
+
+def _bound(value: float) -> str:
+    return str(value) if isinstance(value, int) else f"{value:g}"
+
+
+@dataclass(frozen=True)
+class Interval:
+    """A range of allowed real values; ``str()`` prints it in interval notation.
+
+    An infinite end is always open. This is the one place where tiltwell formats a range,
+    for error messages and for listings alike.
+
+    >>> str(Interval(0.0, 1e6, low_open=True))
+    '(0, 1e+06]'
+    >>> str(Interval(2, 1000)), str(Interval())
+    ('[2, 1000]', '(-inf, inf)')
+    >>> 0.0 in Interval(0.0, 1.0, low_open=True)
+    False
+    """
+
+    low: float = -math.inf
+    high: float = math.inf
+    low_open: bool = False
+    high_open: bool = False
+
+    def __str__(self) -> str:
+        left = "(" if self.low_open or self.low == -math.inf else "["
+        right = ")" if self.high_open or self.high == math.inf else "]"
+        return f"{left}{_bound(self.low)}, {_bound(self.high)}{right}"
+
+    def __contains__(self, number: object) -> bool:
+        if not isinstance(number, numbers.Real):
+            return False
+        x = float(number)
+        return (
+            math.isfinite(x)
+            and (x > self.low if self.low_open else x >= self.low)
+            and (x < self.high if self.high_open else x <= self.high)
+        )
+
+    @property
+    def bounded(self) -> bool:
+        """Whether either end is finite (an unbounded range goes unmentioned in listings)."""
+        return math.isfinite(self.low) or math.isfinite(self.high)
+
+
 def as_scalar(
     value: Any,
     name: str,
@@ -45,42 +104,118 @@ def as_scalar(
     high: float = math.inf,
     low_open: bool = False,
     high_open: bool = False,
+    strict: bool = False,
 ) -> float:
     """Return ``value`` as a finite float inside the given range, or raise.
 
     ``low_open``/``high_open`` exclude the end point; the message prints the range in
-    interval notation with the unit, e.g. ``mass [kg] must be in (0, inf); got -1.0``.
+    interval notation (:class:`Interval`) with the unit, e.g. ``mass [kg] must be finite
+    and in (0, inf); got -1.0``; an empty ``unit`` prints the name alone. ``strict``
+    accepts real numbers only (int, float, numpy reals), not strings or other objects that
+    ``float()`` would convert, as for values read from a file. Bools are never numbers.
     """
+    label = _label(name, unit)
+    if isinstance(value, bool) or (strict and not isinstance(value, numbers.Real)):
+        raise TiltwellError(f"{label} must be a real number; got {_describe(value)}")
     try:
         number = float(value)
     except (TypeError, ValueError):
-        raise TiltwellError(
-            f"{name} [{unit}] must be a real number; got {_describe(value)}"
-        ) from None
-    if isinstance(value, bool):
-        raise TiltwellError(f"{name} [{unit}] must be a real number; got {value!r}")
-    left = "(" if low_open or low == -math.inf else "["
-    right = ")" if high_open or high == math.inf else "]"
-    allowed = f"{left}{low:g}, {high:g}{right}"
-    inside = (
-        math.isfinite(number)
-        and (number > low if low_open else number >= low)
-        and (number < high if high_open else number <= high)
-    )
-    if not inside:
-        raise TiltwellError(f"{name} [{unit}] must be finite and in {allowed}; got {number!r}")
+        raise TiltwellError(f"{label} must be a real number; got {_describe(value)}") from None
+    allowed = Interval(low, high, low_open, high_open)
+    if number not in allowed:
+        raise TiltwellError(f"{label} must be finite and in {allowed}; got {number!r}")
     return number
 
 
-def as_integer(value: Any, name: str, low: int, high: int | None = None) -> int:
-    """Return ``value`` as an int in [low, high] (no upper end when ``high`` is None), or
-    raise naming ``name``; bools are not integers here."""
-    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or not (
-        low <= int(value) and (high is None or int(value) <= high)
+def as_real_tuple(
+    value: Any,
+    name: str,
+    unit: str,
+    *,
+    length: int | None = None,
+    form: str = "",
+    low: float = -math.inf,
+    high: float = math.inf,
+    low_open: bool = False,
+    high_open: bool = False,
+) -> tuple[float, ...]:
+    """Return a list or tuple of real numbers (exactly ``length`` when given) as a tuple of
+    floats, each checked like :func:`as_scalar` with ``strict``; ``form`` says in words
+    what is wanted (default: "a list of N real numbers")."""
+    if isinstance(value, (str, bytes)) or not isinstance(value, Sequence) or (
+        length is not None and len(value) != length
     ):
-        allowed = f"[{low}, {high}]" if high is not None else f">= {low}"
-        raise TiltwellError(f"{name} must be an integer {allowed}; got {value!r}")
+        wanted = form or f"a list of {length if length is not None else 'real'} numbers"
+        raise TiltwellError(f"{_label(name, unit)} must be {wanted}; got {_describe(value)}")
+    return tuple(
+        as_scalar(v, f"{name}[{i}]", unit, low=low, high=high, low_open=low_open, high_open=high_open, strict=True)
+        for i, v in enumerate(value)
+    )
+
+
+def as_real_table(
+    value: Any,
+    name: str,
+    unit: str,
+    *,
+    columns: int,
+    form: str = "",
+    low: float = -math.inf,
+    high: float = math.inf,
+    low_open: bool = False,
+    high_open: bool = False,
+) -> tuple[tuple[float, ...], ...]:
+    """Return a list of rows of ``columns`` real numbers each as a tuple of tuples of floats
+    (each number checked like :func:`as_scalar` with ``strict``); ``form`` says in words
+    what is wanted (default: "a list of rows of N numbers"). An empty list is allowed."""
+    wanted = form or f"a list of rows of {columns} numbers"
+    if isinstance(value, (str, bytes)) or not isinstance(value, Sequence) or not all(
+        isinstance(row, Sequence) and not isinstance(row, (str, bytes)) and len(row) == columns for row in value
+    ):
+        raise TiltwellError(f"{_label(name, unit)} must be {wanted}; got {_describe(value)}")
+    return tuple(
+        as_real_tuple(row, f"{name}[{i}]", unit, length=columns, low=low, high=high, low_open=low_open,
+                      high_open=high_open)
+        for i, row in enumerate(value)
+    )
+
+
+def as_integer(value: Any, name: str, low: int, high: int | None = None, *, even: bool = False) -> int:
+    """Return ``value`` as an int in [low, high] (no upper end when ``high`` is None), or
+    raise naming ``name``; bools are not integers here. ``even`` also requires an even
+    number."""
+    allowed = f"in {Interval(low, high)}" if high is not None else f">= {low}"
+    kind = "an even integer" if even else "an integer"
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or not (
+        low <= int(value) and (high is None or int(value) <= high) and not (even and int(value) % 2)
+    ):
+        raise TiltwellError(f"{name} must be {kind} {allowed}; got {value!r}")
     return int(value)
+
+
+def as_boolean(value: Any, name: str) -> bool:
+    """Return ``value`` if it is a bool (true or false), or raise naming ``name``; numbers
+    are not booleans here."""
+    if not isinstance(value, (bool, np.bool_)):
+        raise TiltwellError(f"{name} must be true or false; got {_describe(value)}")
+    return bool(value)
+
+
+def as_text(value: Any, name: str) -> str:
+    """Return ``value`` if it is a string with something besides spaces, or raise."""
+    if not isinstance(value, str) or not value.strip():
+        raise TiltwellError(f"{name} must be a non-empty string; got {_describe(value)}")
+    return value
+
+
+def as_choice(value: Any, name: str, choices: Sequence[str]) -> str:
+    """Return ``value`` if it is exactly one of ``choices``, or raise naming them and the
+    close match, if any."""
+    if isinstance(value, str) and value in choices:
+        return value
+    close = difflib.get_close_matches(value, list(choices), n=1) if isinstance(value, str) else []
+    hint = f"; did you mean '{close[0]}'?" if close else ""
+    raise TiltwellError(f"{name} must be one of {', '.join(choices)}; got {_describe(value)}{hint}")
 
 
 def as_finite_array(value: ArrayLike, name: str, unit: str, *, ndim: int | None = None) -> NDArray[np.float64]:

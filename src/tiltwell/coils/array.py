@@ -18,7 +18,6 @@ SI units throughout (m, A, T, T/m, s). Output that sizes coil currents carries
 
 from __future__ import annotations
 
-import io
 import math
 import os
 from dataclasses import dataclass
@@ -26,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .._base.files import atomic_write_text
+from .._base.files import write_table
 from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
 from ..physics.constants import VACUUM_PERMEABILITY
 from ..physics.fields import Coil, CoilSet
@@ -198,26 +197,21 @@ class CurrentPlan:
 
         Notes
         -----
-        Lines starting with ``#`` are comments: a title, the units, the electrical caution
-        and the column names (``time_s``, then ``coil_<k>_A`` for each coil that is ever
-        active). Data rows are comma-separated, so
-        ``numpy.loadtxt(path, delimiter=",", comments="#")`` reads them back.
+        tiltwell's table layout (:func:`tiltwell._base.files.table_text`): three lines
+        starting with ``#`` (a title, the units, the electrical caution), one header row
+        ``time [s],coil_<k> [A],...`` with a column for each coil that is ever active, then
+        one comma-separated row per time. ``numpy.loadtxt(path, delimiter=",", skiprows=4)``
+        reads the numbers back; ``numpy.genfromtxt(path, delimiter=",", skip_header=3,
+        names=True)`` also names the columns (``time_s``, ``coil_<k>_A``).
         """
         t = as_finite_array(times, "times", "s", ndim=1)
         if t.shape != self.positions.shape:
             raise TiltwellError(f"times [s] must have shape {self.positions.shape} (one per position); got shape {t.shape}")
         used = np.flatnonzero(np.any(self.currents != 0.0, axis=0))
-        buffer = io.StringIO()
-        for line in (
-            "tiltwell moving-trap coil currents: current per turn of each coil, signed",
-            "units: time in s, currents in A",
-            ELECTRICAL_CAUTION,
-            "columns: " + ",".join(["time_s", *(f"coil_{k}_A" for k in used)]),
-        ):
-            buffer.write(f"# {line}\n")
-        for j in range(t.size):
-            buffer.write(",".join(repr(float(v)) for v in (t[j], *self.currents[j, used])) + "\n")
-        atomic_write_text(path, buffer.getvalue())
+        columns = [("time", "s"), *((f"coil_{k}", "A") for k in used)]
+        rows = ((t[j], *self.currents[j, used]) for j in range(t.size))
+        write_table(path, "tiltwell moving-trap coil currents: current per turn of each coil, signed", columns, rows,
+                    caution=ELECTRICAL_CAUTION)
 
 
 def _check_array(array: object) -> None:

@@ -3,16 +3,14 @@
 A constant-deceleration :class:`Schedule` moves the trap centre from z = 0 at t = 0 with
 speed ``v0`` to ``vf``; :func:`coil_timing` turns it into switching windows for a row of
 overlapping coils (:mod:`tiltwell.physics.hardware` sizes one coil's pulse); :func:`arrival_times`
-follows released particles to a detector plane. SI units throughout; the two ``*_csv`` methods are the only file output.
+follows released particles to a detector plane. SI units throughout; the two ``*_csv``
+methods are the only file output (in :func:`tiltwell._base.files.write_table`'s layout).
 """
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 import os
-from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -20,7 +18,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .._base.display import html_table
 from .._base.validation import TiltwellError, as_finite_array, as_scalar
-from .._base.files import atomic_write_text
+from .._base.files import write_table
 from ..physics.hardware import ELECTRICAL_CAUTION
 
 __all__ = [
@@ -224,25 +222,34 @@ class CoilTiming:
         return self.peak_current * np.clip(ramp, 0.0, 1.0)
 
     def to_csv(self, path: str | os.PathLike[str]) -> None:
-        """Write one row per coil to ``path``, atomically, under a commented caution block.
+        """Write one row per coil to ``path``, atomically, in tiltwell's table layout
+        (:func:`tiltwell._base.files.table_text`): three ``#`` lines (title, units, the
+        electrical caution), the header row, the rows.
 
-        Columns: index, position_m, passing_time_s, on_time_s, off_time_s, peak_current_A,
-        rise_time_s. Lines starting with ``#`` are comments.
+        Columns: ``index [1]``, ``position [m]``, ``passing_time [s]``, ``on_time [s]``,
+        ``off_time [s]``, ``peak_current [A]``, ``rise_time [s]``. Read it back with
+        ``numpy.genfromtxt(path, delimiter=",", skip_header=3, names=True)`` (named columns
+        ``position_m``, ...) or ``numpy.loadtxt(path, delimiter=",", skiprows=4)``.
         """
-        header = ["index", "position_m", "passing_time_s", "on_time_s", "off_time_s", "peak_current_A", "rise_time_s"]
+        columns = [("index", "1"), ("position", "m"), ("passing_time", "s"), ("on_time", "s"), ("off_time", "s"),
+                   ("peak_current", "A"), ("rise_time", "s")]
         rows = (
-            [str(k), *(repr(float(v)) for v in (z, tp, ton, toff, self.peak_current, self.rise_time))]
+            (k, z, tp, ton, toff, self.peak_current, self.rise_time)
             for k, (z, tp, ton, toff) in enumerate(zip(self.positions, self.passing_times, self.on_times, self.off_times))
         )
-        _write_csv(path, ["tiltwell coil timing: one row per coil; envelopes |I|, polarity not included"], header, rows)
+        write_table(path, "tiltwell coil timing: one row per coil; envelopes |I|, polarity not included", columns,
+                    rows, caution=ELECTRICAL_CAUTION)
 
     def waveform_csv(self, path: str | os.PathLike[str], times: ArrayLike) -> None:
-        """Write ``times`` [s], shape (T,), and each coil's envelope [A] as columns, atomically."""
+        """Write ``times`` [s], shape (T,), and each coil's envelope [A] as columns, atomically,
+        in the layout of :meth:`to_csv`: columns ``time [s]``, ``coil_0 [A]``, ``coil_1 [A]``, ...
+        (one per coil); ``numpy.loadtxt(path, delimiter=",", skiprows=4)`` reads it."""
         t = as_finite_array(times, "times", "s", ndim=1)
         currents = self.current(t)
-        header = ["time_s", *(f"coil_{k}_A" for k in range(currents.shape[0]))]
-        rows = ([repr(float(v)) for v in (t[j], *currents[:, j])] for j in range(t.size))
-        _write_csv(path, ["tiltwell coil current envelopes |I|; polarity not included"], header, rows)
+        columns = [("time", "s"), *((f"coil_{k}", "A") for k in range(currents.shape[0]))]
+        rows = ((t[j], *currents[:, j]) for j in range(t.size))
+        write_table(path, "tiltwell coil current envelopes |I|; polarity not included", columns, rows,
+                    caution=ELECTRICAL_CAUTION)
 
     def _repr_html_(self) -> str:
         rows = [
@@ -306,18 +313,6 @@ def coil_timing(
     rise = as_scalar(rise_time, "rise_time", "s", low=0.0, high=0.5 * shortest)
     amps = as_scalar(peak_current, "peak_current", "A", low=0.0, low_open=True)
     return CoilTiming(positions, schedule.time_at(positions), on, off, amps, rise)
-
-
-def _write_csv(path: str | os.PathLike[str], title: Sequence[str], header: Sequence[str], rows: Iterable[Sequence[str]]) -> None:
-    """Comment lines (title, units, the caution), a header row and ``rows``, written
-    atomically: on any error the target is untouched."""
-    buffer = io.StringIO()
-    for line in [*title, "units: SI (m, s, A)", ELECTRICAL_CAUTION]:
-        buffer.write(f"# {line}\n")
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow(header)
-    writer.writerows(rows)
-    atomic_write_text(path, buffer.getvalue())
 
 
 def arrival_times(final: ArrayLike, release_velocity: float, distance: float) -> FloatArray:

@@ -10,21 +10,22 @@ coil-array pitch and current pulse for the timing table; ``[simulation]`` sample
 seed and numerics; optionally ``[coils]``, the real coil row of the decelerator (winding,
 current limit, number of active coils, waveform table step), used by ``tiltwell coils``.
 
-Loading checks everything and reports the first problem naming the section, key, unit,
-allowed range and the value found; an unknown key is an error that suggests the close
-match. Saving writes a temporary file beside the target and renames it over, so a crash
-never leaves a half-written scenario, and ``load(save(x)) == x``.
+Every key is declared with its :class:`~tiltwell.workflows.keys.KeySpec` (kind, unit, range,
+default), and loading converts each value through the one validation helper
+(:mod:`tiltwell._base.validation`), reporting the first problem naming the section, key,
+unit, allowed range and the value found; an unknown section or key is an error that
+suggests the close match. Saving writes a temporary file beside the target and renames it
+over, so a crash never leaves a half-written scenario, and ``load(save(x)) == x``.
 """
 
 from __future__ import annotations
 
 import dataclasses
 import difflib
-import math
 import os
 import tomllib
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -32,6 +33,7 @@ import tomli_w
 
 from .._base.files import atomic_write_text
 from .._base.validation import TiltwellError
+from .keys import key, spec_of
 
 __all__ = [
     "BeamSection",
@@ -49,79 +51,76 @@ __all__ = [
 ]
 
 
-def _key(unit: str, doc: str, low: float = -math.inf, high: float = math.inf, *, default: Any = None,
-         choices: tuple[str, ...] = (), open_low: bool = False) -> Any:
-    """A dataclass field carrying its unit, range and meaning for validation and docs."""
-    meta = {"unit": unit, "doc": doc, "low": low, "high": high, "choices": choices, "open_low": open_low}
-    return field(default=default, metadata=meta)
-
-
 @dataclass(frozen=True)
 class SpeciesSection:
-    name: str = _key("", "catalogue name (tiltwell.catalogue()), or the label of a custom species")
-    mass: float | None = _key("kg", "mass of a custom species (give with moment)", 0.0, 1e-22, open_low=True)
-    moment: float | None = _key("J/T", "linear Zeeman moment of a custom species (give with mass)", 0.0, 1e-21,
-                                open_low=True)
+    name: str = key("text", "", "catalogue name (tiltwell.catalogue()), or the label of a custom species",
+                    required=True)
+    mass: float | None = key("number", "kg", "mass of a custom species (give with moment)", 0.0, 1e-22, open_low=True)
+    moment: float | None = key("number", "J/T", "linear Zeeman moment of a custom species (give with mass)", 0.0, 1e-21,
+                               open_low=True)
 
 
 @dataclass(frozen=True)
 class TrapSection:
-    kind: str = _key("", "the trap", choices=("quadrupole", "coils"))
-    half_widths: tuple[float, ...] | None = _key(
-        "m", "half widths (x, y, z) of the trap box around the field zero; quadrupole default: 4, 4, 2 x "
-        "max_field/gradient", 0.0, 10.0, open_low=True)
-    gradient: float | None = _key("T/m", "axial gradient of the quadrupole", 0.0, 1e5, open_low=True)
-    max_field: float | None = _key("T", "field where the quadrupole's depth is cut", 0.0, 100.0, open_low=True)
-    radius: float | None = _key("m", "coil mean radius", 0.0, 10.0, open_low=True)
-    separation: float | None = _key("m", "distance between the two coil planes", 0.0, 20.0, open_low=True)
-    current: float | None = _key("A", "current per turn", 0.0, 1e6, open_low=True)
-    turns: int | None = _key("", "turns per coil", 1, 1e6)
-    width: float | None = _key("m", "radial extent of a winding", 0.0, 10.0)
-    height: float | None = _key("m", "axial extent of a winding", 0.0, 10.0)
+    kind: str = key("choice", "", "the trap", choices=("quadrupole", "coils"), required=True)
+    half_widths: tuple[float, ...] | None = key(
+        "triple", "m", "half widths (x, y, z) of the trap box around the field zero; quadrupole default: 4, 4, 2 x "
+        "max_field/gradient", 0.0, 10.0, open_low=True, form="three numbers [x, y, z]")
+    gradient: float | None = key("number", "T/m", "axial gradient of the quadrupole", 0.0, 1e5, open_low=True)
+    max_field: float | None = key("number", "T", "field where the quadrupole's depth is cut", 0.0, 100.0, open_low=True)
+    radius: float | None = key("number", "m", "coil mean radius", 0.0, 10.0, open_low=True)
+    separation: float | None = key("number", "m", "distance between the two coil planes", 0.0, 20.0, open_low=True)
+    current: float | None = key("number", "A", "current per turn", 0.0, 1e6, open_low=True)
+    turns: int | None = key("integer", "", "turns per coil", 1, 1e6)
+    width: float | None = key("number", "m", "radial extent of a winding", 0.0, 10.0)
+    height: float | None = key("number", "m", "axial extent of a winding", 0.0, 10.0)
 
 
 @dataclass(frozen=True)
 class BeamSection:
-    gas: str = _key("", "carrier gas name (He, Ne, Ar, Kr, Xe, H2, N2, O2)")
-    temperature: float = _key("K", "nozzle stagnation temperature", 0.0, 5000.0, open_low=True)
-    speed_ratio: float | None = _key("", "speed ratio v/alpha (or give relative_spread)", 0.0, 1000.0, open_low=True)
-    relative_spread: float | None = _key("", "rms velocity spread over mean velocity", 0.0, 1.0, open_low=True)
-    valve_open_time: float = _key("s", "valve opening time", 0.0, 1.0, open_low=True)
-    nozzle_diameter: float = _key("m", "nozzle orifice diameter", 0.0, 0.1, open_low=True)
-    nozzle_skimmer_distance: float = _key("m", "nozzle to skimmer", 0.0, 10.0, open_low=True)
-    skimmer_diameter: float = _key("m", "skimmer orifice diameter", 0.0, 0.1, open_low=True)
-    flight_distance: float = _key("m", "nozzle to the point where the trap is switched on", 0.0, 100.0,
-                                  open_low=True)
-    apertures: tuple[tuple[float, float], ...] = _key(
-        "m", "further apertures as [[distance from nozzle, diameter], ...]", 0.0, 100.0, default=(), open_low=True)
-    mismatch: float = _key("m/s", "trap velocity minus beam velocity at switch-on", -1e4, 1e4, default=0.0)
+    gas: str = key("text", "", "carrier gas name (He, Ne, Ar, Kr, Xe, H2, N2, O2)", required=True)
+    temperature: float = key("number", "K", "nozzle stagnation temperature", 0.0, 5000.0, open_low=True, required=True)
+    speed_ratio: float | None = key("number", "", "speed ratio v/alpha (or give relative_spread)", 0.0, 1000.0,
+                                    open_low=True)
+    relative_spread: float | None = key("number", "", "rms velocity spread over mean velocity", 0.0, 1.0, open_low=True)
+    valve_open_time: float = key("number", "s", "valve opening time", 0.0, 1.0, open_low=True, required=True)
+    nozzle_diameter: float = key("number", "m", "nozzle orifice diameter", 0.0, 0.1, open_low=True, required=True)
+    nozzle_skimmer_distance: float = key("number", "m", "nozzle to skimmer", 0.0, 10.0, open_low=True, required=True)
+    skimmer_diameter: float = key("number", "m", "skimmer orifice diameter", 0.0, 0.1, open_low=True, required=True)
+    flight_distance: float = key("number", "m", "nozzle to the point where the trap is switched on", 0.0, 100.0,
+                                 open_low=True, required=True)
+    apertures: tuple[tuple[float, float], ...] = key(
+        "pairs", "m", "further apertures as [[distance from nozzle, diameter], ...]", 0.0, 100.0, default=(),
+        open_low=True, form="a list of [distance, diameter] pairs")
+    mismatch: float = key("number", "m/s", "trap velocity minus beam velocity at switch-on", -1e4, 1e4, default=0.0)
 
 
 @dataclass(frozen=True)
 class DecelerationSection:
-    final_velocity: float = _key("m/s", "velocity at the end of the deceleration", 0.0, 1e5)
-    deceleration: float | None = _key("m/s^2", "constant deceleration (or give length)", 0.0, 1e9, open_low=True)
-    length: float | None = _key("m", "deceleration length (or give deceleration)", 0.0, 1e3, open_low=True)
-    pitch: float | None = _key("m", "coil-array pitch, for the timing table", 0.0, 1.0, open_low=True)
-    peak_current: float | None = _key("A", "coil current pulse height, for the timing table", 0.0, 1e6,
-                                      open_low=True)
-    rise_time: float = _key("s", "current rise time of each coil", 0.0, 1.0, default=0.0)
+    final_velocity: float = key("number", "m/s", "velocity at the end of the deceleration", 0.0, 1e5, required=True)
+    deceleration: float | None = key("number", "m/s^2", "constant deceleration (or give length)", 0.0, 1e9,
+                                     open_low=True)
+    length: float | None = key("number", "m", "deceleration length (or give deceleration)", 0.0, 1e3, open_low=True)
+    pitch: float | None = key("number", "m", "coil-array pitch, for the timing table", 0.0, 1.0, open_low=True)
+    peak_current: float | None = key("number", "A", "coil current pulse height, for the timing table", 0.0, 1e6,
+                                     open_low=True)
+    rise_time: float = key("number", "s", "current rise time of each coil", 0.0, 1.0, default=0.0)
 
 
 @dataclass(frozen=True)
 class SimulationSection:
-    particles: int = _key("", "Monte-Carlo sample size", 1, 1e8, default=10_000)
-    seed: int = _key("", "random seed", 0, 2**63 - 1, default=0)
-    method: str = _key("", "integrator", default="verlet", choices=("verlet", "yoshida4"))
-    time_step: float | None = _key("s", "integrator step (default: well crossing time / 100)", 0.0, 1.0,
-                                   open_low=True)
-    samples: int = _key("", "samples of each 1-D cut", 101, 100_001, default=2001)
-    rtol: float = _key("", "relative accuracy of the 6-D acceptance", 1e-4, 0.5, default=1e-2)
-    track: bool = _key("", "integrate trajectories (false: overlap and energetic only)", default=True)
-    switch_on_time: float = _key("s", "linear ramp of the trap depth at switch-on (trajectories only)", 0.0, 1.0,
-                                 default=0.0)
-    detector_distance: float | None = _key("m", "time-of-flight detector beyond the trap centre at release",
-                                           0.0, 100.0, open_low=True)
+    particles: int = key("integer", "", "Monte-Carlo sample size", 1, 1e8, default=10_000)
+    seed: int = key("integer", "", "random seed", 0, 2**63 - 1, default=0)
+    method: str = key("choice", "", "integrator", default="verlet", choices=("verlet", "yoshida4"))
+    time_step: float | None = key("number", "s", "integrator step (default: well crossing time / 100)", 0.0, 1.0,
+                                  open_low=True)
+    samples: int = key("integer", "", "samples of each 1-D cut", 101, 100_001, default=2001)
+    rtol: float = key("number", "", "relative accuracy of the 6-D acceptance", 1e-4, 0.5, default=1e-2)
+    track: bool = key("boolean", "", "integrate trajectories (false: overlap and energetic only)", default=True)
+    switch_on_time: float = key("number", "s", "linear ramp of the trap depth at switch-on (trajectories only)", 0.0,
+                                1.0, default=0.0)
+    detector_distance: float | None = key("number", "m", "time-of-flight detector beyond the trap centre at release",
+                                          0.0, 100.0, open_low=True)
 
 
 @dataclass(frozen=True)
@@ -129,23 +128,24 @@ class CoilsSection:
     """The coil row: coaxial coils at [deceleration] pitch from z = -(active/2) pitch to at
     least length + (active/2) pitch, so ceil(length / pitch) + active + 1 coils."""
 
-    radius: float = _key("m", "mean winding radius of each coil", 0.0, 1.0, open_low=True)
-    turns: int = _key("", "turns per coil", 1, 1e5)
-    width: float = _key("m", "radial extent of a winding (the bore, radius - width/2, must clear the trap box)",
-                        0.0, 1.0, open_low=True)
-    height: float = _key("m", "axial extent of a winding (at most the pitch)", 0.0, 1.0, open_low=True)
-    fill_factor: float = _key("", "copper fraction of the winding cross-section (round wire, square packing: "
-                              "at most pi/4)", 0.0, 1.0, default=0.6, open_low=True)
-    max_current: float | None = _key("A", "largest current per turn (default: [deceleration] peak_current)",
-                                     0.0, 1e6, open_low=True)
-    active: int = _key("", "coils carrying current at once, even", 2, 1000, default=4)
-    handover: float = _key("pitches", "distance over which a coil is weighted into or out of the active window, "
-                           "at most active/2 (0: abrupt, the currents jump)", 0.0, 500.0, default=0.5)
-    gradient: float | None = _key("T/m", "wanted axial gradient at the zero (default: the [trap] quadrupole "
-                                  "gradient; required for other traps)", 0.0, 1e5, open_low=True)
-    plan_step: float = _key("s", "time between the points of the current waveform table", 0.0, 1.0,
-                            default=2e-6, open_low=True)
-    phases: int = _key("", "trap positions across one pitch in the phase scan", 1, 1000, default=16)
+    radius: float = key("number", "m", "mean winding radius of each coil", 0.0, 1.0, open_low=True, required=True)
+    turns: int = key("integer", "", "turns per coil", 1, 1e5, required=True)
+    width: float = key("number", "m", "radial extent of a winding (the bore, radius - width/2, must clear the trap "
+                       "box)", 0.0, 1.0, open_low=True, required=True)
+    height: float = key("number", "m", "axial extent of a winding (at most the pitch)", 0.0, 1.0, open_low=True,
+                        required=True)
+    fill_factor: float = key("number", "", "copper fraction of the winding cross-section (round wire, square packing: "
+                             "at most pi/4)", 0.0, 1.0, default=0.6, open_low=True)
+    max_current: float | None = key("number", "A", "largest current per turn (default: [deceleration] peak_current)",
+                                    0.0, 1e6, open_low=True)
+    active: int = key("even integer", "", "coils carrying current at once", 2, 1000, default=4)
+    handover: float = key("number", "pitches", "distance over which a coil is weighted into or out of the active "
+                          "window, at most active/2 (0: abrupt, the currents jump)", 0.0, 500.0, default=0.5)
+    gradient: float | None = key("number", "T/m", "wanted axial gradient at the zero (default: the [trap] quadrupole "
+                                 "gradient; required for other traps)", 0.0, 1e5, open_low=True)
+    plan_step: float = key("number", "s", "time between the points of the current waveform table", 0.0, 1.0,
+                           default=2e-6, open_low=True)
+    phases: int = key("integer", "", "trap positions across one pitch in the phase scan", 1, 1000, default=16)
 
 
 _SECTIONS: dict[str, type] = {
@@ -176,20 +176,14 @@ class Scenario:
     coils: CoilsSection | None = None
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
-        """Plain nested dict of the given values (None omitted), as written to TOML."""
+        """Plain nested dict of the given values (None omitted, tuples as lists), as written
+        to TOML."""
         out: dict[str, dict[str, Any]] = {}
         for name in _SECTIONS:
             section = getattr(self, name)
-            if section is None:
-                continue
-            values = {}
-            for item in dataclasses.fields(section):
-                value = getattr(section, item.name)
-                if value is None:
-                    continue
-                values[item.name] = [list(v) for v in value] if item.name == "apertures" else (
-                    list(value) if isinstance(value, tuple) else value)
-            out[name] = values
+            if section is not None:
+                out[name] = {item.name: _plain(getattr(section, item.name)) for item in dataclasses.fields(section)
+                             if getattr(section, item.name) is not None}
         return out
 
     def replace(self, section: str, **changes: Any) -> Scenario:
@@ -199,11 +193,11 @@ class Scenario:
         if section not in _SECTIONS:
             raise _unknown("section", f"[{section}]", [f"[{known}]" for known in _SECTIONS])
         data.setdefault(section, {})
-        for key, value in changes.items():
+        for name, value in changes.items():
             if value is None:
-                data[section].pop(key, None)
+                data[section].pop(name, None)
             else:
-                data[section][key] = value
+                data[section][name] = value
         return from_dict(data)
 
 
@@ -213,42 +207,9 @@ def _unknown(what: str, name: str, known: list[str], where: str = "") -> Tiltwel
     return TiltwellError(f"unknown {what} '{where}{name}'{hint}")
 
 
-def _convert(section: str, item: dataclasses.Field[Any], value: Any) -> Any:
-    meta = item.metadata
-    where = f"[{section}] {item.name}"
-    unit = f" [{meta['unit']}]" if meta["unit"] else ""
-    low, high = meta["low"], meta["high"]
-    allowed = f"{'(' if meta['open_low'] else '['}{low:g}, {high:g}]"
-    kind = str(item.type)
-
-    def number(x: Any, integer: bool = False) -> float | int:
-        if isinstance(x, bool) or not isinstance(x, (int, float)) or (integer and not isinstance(x, int)):
-            raise TiltwellError(f"{where}{unit} must be {'an integer' if integer else 'a number'} "
-                                f"in {allowed}; got {x!r}")
-        inside = math.isfinite(x) and (x > low if meta["open_low"] else x >= low) and x <= high
-        if not inside:
-            raise TiltwellError(f"{where}{unit} must be in {allowed}; got {x!r}")
-        return x if integer else float(x)
-
-    if item.name == "apertures":
-        if not isinstance(value, list) or not all(isinstance(p, list) and len(p) == 2 for p in value):
-            raise TiltwellError(f"{where} [m] must be a list of [distance, diameter] pairs; got {value!r}")
-        return tuple((number(d), number(w)) for d, w in value)
-    if item.name == "half_widths":
-        if not isinstance(value, list) or len(value) != 3:
-            raise TiltwellError(f"{where}{unit} must be three numbers [x, y, z] in {allowed}; got {value!r}")
-        return tuple(number(v) for v in value)
-    if kind.startswith("str"):
-        if not isinstance(value, str) or not value.strip():
-            raise TiltwellError(f"{where} must be a non-empty string; got {value!r}")
-        if meta["choices"] and value not in meta["choices"]:
-            raise _unknown("value", value, list(meta["choices"]), f"{where} = ")
-        return value
-    if kind.startswith("bool"):
-        if not isinstance(value, bool):
-            raise TiltwellError(f"{where} must be true or false; got {value!r}")
-        return value
-    return number(value, integer=kind.startswith("int"))
+def _plain(value: Any) -> Any:
+    """Tuples (at any depth) as lists, as TOML writes arrays."""
+    return [_plain(v) for v in value] if isinstance(value, tuple) else value
 
 
 def from_dict(data: Mapping[str, Any]) -> Scenario:
@@ -268,16 +229,16 @@ def from_dict(data: Mapping[str, Any]) -> Scenario:
             raise TiltwellError(f"missing section [{name}]")
         if not isinstance(raw, Mapping):
             raise TiltwellError(f"[{name}] must be a table; got {raw!r}")
-        fields = {item.name: item for item in dataclasses.fields(cls)}
-        for key in raw:
-            if key not in fields:
-                raise _unknown("key", key, list(fields), f"[{name}] ")
+        specs = {item.name: spec_of(item) for item in dataclasses.fields(cls)}
+        for key_name in raw:
+            if key_name not in specs:
+                raise _unknown("key", key_name, list(specs), f"[{name}] ")
         values = {}
-        for key, item in fields.items():
-            if key in raw:
-                values[key] = _convert(name, item, raw[key])
-            elif item.default is dataclasses.MISSING or (item.default is None and "None" not in str(item.type)):
-                raise TiltwellError(f"[{name}] {key} is required ({item.metadata['doc']})")
+        for key_name, spec in specs.items():
+            if key_name in raw:
+                values[key_name] = spec.convert(f"[{name}] {key_name}", raw[key_name])
+            elif spec.required:
+                raise TiltwellError(f"[{name}] {key_name} is required ({spec.doc})")
         sections[name] = cls(**values)
     scenario = Scenario(**sections)
     _check_together(scenario)
@@ -294,14 +255,14 @@ def _check_together(s: Scenario) -> None:
     if (s.species.mass is None) != (s.species.moment is None):
         raise TiltwellError("[species] give both mass [kg] and moment [J/T] for a custom species, or neither")
     needed = {"quadrupole": ("gradient", "max_field"), "coils": ("radius", "separation", "current", "half_widths")}
-    for key in needed[s.trap.kind]:
-        if getattr(s.trap, key) is None:
-            raise TiltwellError(f"[trap] {key} is required when kind = \"{s.trap.kind}\"")
+    for name in needed[s.trap.kind]:
+        if getattr(s.trap, name) is None:
+            raise TiltwellError(f"[trap] {name} is required when kind = \"{s.trap.kind}\"")
     unused = {"quadrupole": ("radius", "separation", "current", "turns", "width", "height"),
               "coils": ("gradient", "max_field")}
-    for key in unused[s.trap.kind]:
-        if getattr(s.trap, key) is not None:
-            raise TiltwellError(f"[trap] {key} does not apply when kind = \"{s.trap.kind}\"")
+    for name in unused[s.trap.kind]:
+        if getattr(s.trap, name) is not None:
+            raise TiltwellError(f"[trap] {name} does not apply when kind = \"{s.trap.kind}\"")
     _exactly_one("beam", "speed_ratio", "relative_spread", s.beam.speed_ratio, s.beam.relative_spread)
     _exactly_one("deceleration", "deceleration", "length", s.deceleration.deceleration, s.deceleration.length)
     if (s.deceleration.pitch is None) != (s.deceleration.peak_current is None):
@@ -327,8 +288,6 @@ def _check_coils(s: Scenario) -> None:
     assert c is not None
     if pitch is None:
         raise TiltwellError("[coils] needs the coil pitch: give [deceleration] pitch [m] (and peak_current [A])")
-    if c.active % 2:
-        raise TiltwellError(f"[coils] active must be an even integer in [2, 1000]; got {c.active!r}")
     if c.gradient is None and s.trap.kind != "quadrupole":
         raise TiltwellError(f"[coils] gradient [T/m] is required when [trap] kind = \"{s.trap.kind}\"")
     if c.height > pitch:
@@ -371,21 +330,12 @@ def save(scenario: Scenario, path: str | os.PathLike[str]) -> Path:
 
 
 def describe() -> str:
-    """Every section and key with unit, allowed range and meaning."""
+    """Every section and key with unit, allowed range, default and meaning
+    (:meth:`~tiltwell.workflows.keys.KeySpec.describe`)."""
     lines = []
     for name, cls in _SECTIONS.items():
         lines.append(f"[{name}]" + (" (optional section)" if name in _OPTIONAL else ""))
         if name in _NOTES:
             lines.append(f"  {_NOTES[name]}")
-        for item in dataclasses.fields(cls):
-            meta = item.metadata
-            unit = f" [{meta['unit']}]" if meta["unit"] else ""
-            if meta["choices"]:
-                allowed = " one of " + ", ".join(meta["choices"])
-            elif math.isfinite(meta["low"]) or math.isfinite(meta["high"]):
-                allowed = f" in {'(' if meta['open_low'] else '['}{meta['low']:g}, {meta['high']:g}]"
-            else:
-                allowed = ""
-            optional = "" if item.default in (None, ()) else f" (default {item.default!r})"
-            lines.append(f"  {item.name}{unit}{allowed}{optional}: {meta['doc']}")
+        lines.extend(f"  {spec_of(item).describe(item.name)}" for item in dataclasses.fields(cls))
     return "\n".join(lines)

@@ -10,8 +10,6 @@ client's ``get_executor()`` sends the same points to a cluster.
 
 from __future__ import annotations
 
-import csv
-import io
 import os
 from collections.abc import Iterable, Iterator, Sequence
 from concurrent.futures import Executor
@@ -24,7 +22,7 @@ from tqdm.auto import tqdm
 
 from .._base.validation import TiltwellError, as_finite_array
 from .report import UNITS, summarise
-from .._base.files import atomic_write_text
+from .._base.files import table_text, write_table
 from .scenario import Scenario
 
 __all__ = ["COLUMNS", "sweep", "sweep_csv"]
@@ -87,13 +85,19 @@ def sweep(
 
 
 def sweep_csv(rows: Sequence[dict[str, Any]], path: str | os.PathLike[str] | None = None) -> str:
-    """The rows as CSV text (header: column [unit]); written atomically to ``path`` if given."""
-    buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow([f"{name} [{UNITS.get(name, '1')}]" for name in COLUMNS])
-    for row in rows:
-        writer.writerow(["" if row.get(name) is None else repr(row[name]) for name in COLUMNS])
-    text = buffer.getvalue()
-    if path is not None:
-        atomic_write_text(Path(path), text)
-    return text
+    """The rows as CSV text in tiltwell's table layout; written atomically to ``path`` if given.
+
+    Three ``#`` lines (title, units, a note on the rows), one header row
+    ``deceleration [m/s^2],length [m],...`` (:data:`COLUMNS` with their units), then one
+    row per point; a value the summary does not have (e.g. the Monte-Carlo fraction when
+    ``[simulation] track`` is false) is an empty cell. Read it with
+    ``numpy.genfromtxt(path, delimiter=",", skip_header=3, names=True)`` (empty cells
+    become NaN; ``numpy.loadtxt`` refuses them).
+    """
+    columns = [(name, UNITS.get(name, "1")) for name in COLUMNS]
+    table = ([row.get(name) for name in COLUMNS] for row in rows)
+    title = "tiltwell trade-off sweep: one row per deceleration (or length), same target final velocity"
+    note = "each row: tiltwell.workflows.report.summarise of the scenario so changed; empty cell: not computed"
+    if path is None:
+        return table_text(title, columns, table, caution=note)
+    return write_table(Path(path), title, columns, table, caution=note)
