@@ -12,6 +12,9 @@ trap centre at switch-on.
 - Per particle-step against the rigid trap-frame tracker (``tiltwell.track`` with the
   inline ideal quadrupole) on the same cloud over the first 200 steps: the price of
   following 300 coils' time-dependent field instead of a fixed analytic force. No target.
+- Per step, ``method="yoshida4"`` against the default ``"verlet"`` of ``track_device`` on the
+  same cloud over the first 100 steps (three force evaluations a step against one, so
+  about 3x; the price of 4th order). No target.
 - Peak memory (tracemalloc, which sees numpy's allocations) of 1e5 particles x 50 steps.
   Target: <= 1 GB.
 
@@ -34,6 +37,7 @@ TIME_STEP = 1e-6
 GRADIENT = 200.0
 BOX = (0.0035, 0.0035, 0.004)
 SHORT_STEPS = 200
+YOSHIDA_STEPS = 100
 MEMORY_STEPS = 50
 TIME_TARGET = 300.0
 MEMORY_TARGET = 1e9
@@ -102,6 +106,26 @@ def rigid_row() -> tuple[dict[str, object], list[str]]:
     return row, checks
 
 
+def yoshida_row() -> tuple[dict[str, object], list[str]]:
+    states = lab(cloud(PARTICLES, seed=1))
+    duration = YOSHIDA_STEPS * TIME_STEP
+    kept: dict[str, tiltwell.TrackingResult] = {}
+
+    def run(method: str) -> None:
+        kept[method] = track_device(ARRAY, None, SPECIES, states, schedule=SCHEDULE, gradient=GRADIENT,
+                                    time_step=TIME_STEP, duration=duration, box_half_widths=BOX, method=method)
+
+    yoshida_s = median_time(lambda: run("yoshida4"), repeats=3)
+    verlet_s = median_time(lambda: run("verlet"), repeats=3)
+    case = (f"track_device yoshida4 vs verlet, 1e5 particles x {YOSHIDA_STEPS} steps: "
+            f"{_computed_steps(kept['yoshida4'], YOSHIDA_STEPS) / yoshida_s:.3g} particle-steps/s")
+    checks = [f"first {YOSHIDA_STEPS} steps kept: yoshida4 {kept['yoshida4'].fraction:.4f}, "
+              f"verlet {kept['verlet'].fraction:.4f}"]
+    row = {"case": case, "tiltwell_s": yoshida_s, "reference_s": verlet_s, "ratio": yoshida_s / verlet_s,
+           "target": "none set (ref column: verlet)", "met": None}
+    return row, checks
+
+
 def memory_row() -> tuple[dict[str, object], list[str]]:
     particles = lab(cloud(PARTICLES, seed=2))
     tracemalloc.start()
@@ -121,7 +145,7 @@ def memory_row() -> tuple[dict[str, object], list[str]]:
 
 def run() -> tuple[list[dict[str, object]], list[str]]:
     rows, checks = [], []
-    for make in (memory_row, rigid_row, full_row):
+    for make in (memory_row, rigid_row, yoshida_row, full_row):
         row, more = make()
         rows.append(row)
         checks += more

@@ -9,9 +9,11 @@ import magpylib
 import numpy as np
 import pytest
 from scipy import optimize
+from scipy.integrate import solve_ivp
 
 import tiltwell as tw
-from tiltwell.dynamics.device import CoilFieldMap, UniformMotion, _StepField, track_device
+from tiltwell.dynamics.coilmap import SummedCoilField
+from tiltwell.dynamics.device import CoilFieldMap, UniformMotion, track_device
 from tiltwell.physics.fields import Coil, loop_field
 
 WOUND = tw.CoilArray(count=12, pitch=0.006, radius=0.008, first=-0.02, turns=20, width=0.002, height=0.003)
@@ -80,6 +82,13 @@ def test_superposed_map_field_has_its_zero_at_the_trap(time: float) -> None:
 
     zero = optimize.brentq(axial, z_trap - 0.4 * ROW.pitch, z_trap + 0.4 * ROW.pitch, xtol=1e-12)
     assert abs(zero - z_trap) < 1e-6
+    # Outside reference beside trap_currents: magpylib's field of the same coils and currents
+    # (current.Circle, its own elliptic integrals) has its on-axis zero at z_trap too
+    # (measured |offset| <= 1.7e-15 m; asserted 1e-9 m), and the map's zero within 1e-6 m of it.
+    outside = optimize.brentq(lambda z: np.atleast_2d(_magpylib_field(ROW, currents, np.array([[0.0, 0.0, z]])))[0, 2],
+                              z_trap - 0.4 * ROW.pitch, z_trap + 0.4 * ROW.pitch, xtol=1e-13)
+    assert abs(outside - z_trap) < 1e-9
+    assert abs(zero - outside) < 1e-6
 
 
 def _trap_frame_energy(states: np.ndarray, z_trap: float) -> np.ndarray:
@@ -106,7 +115,14 @@ def test_uniform_motion_keeps_trap_frame_energy_to_the_ripple() -> None:
     result = track_device(ROW, None, OH, lab, schedule=motion, gradient=GRADIENT, time_step=2e-6,
                           duration=2.3e-3, box_half_widths=BOX)
     assert result.kept.all()
-    change = _trap_frame_energy(result.final, float(motion.position(2.3e-3))) - _trap_frame_energy(start, 0.0)
+    # Outside reference for the field inside the energy: magpylib's |B| of the same coils
+    # (current.Circle) equals the CoilSet's to 1e-9 at the final positions.
+    end = float(motion.position(2.3e-3))
+    currents = tw.trap_currents(ROW, [end], GRADIENT).currents[0]
+    points = result.final[:, :3] + (0.0, 0.0, end)
+    np.testing.assert_allclose(ROW.field_set(currents).magnitude(points),
+                               np.linalg.norm(_magpylib_field(ROW, currents, points), axis=1), rtol=1e-9)
+    change = _trap_frame_energy(result.final, end) - _trap_frame_energy(start, 0.0)
     assert np.max(np.abs(change)) / np.mean(phases.depth) < 1.2 * phases.ripple
     assert phases.ripple < 0.1  # the premise: a small ripple
 
@@ -131,6 +147,39 @@ def test_decelerating_device_survival_agrees_with_rigid_trap() -> None:
     assert 0.5 < rigid.fraction < 0.98  # the comparison is informative: some loss, not all
     assert abs(device.fraction - rigid.fraction) < 0.05
     assert device.final[device.kept, 2].std() < BOX[2]  # trap frame: kept particles near the zero
+    # Outside reference beside tiltwell.track: three kept particles integrated by
+    # scipy.integrate.solve_ivp (DOP853, rtol 1e-9) in magpylib's field of the active coils
+    # (current.Circle; grad|B| by central differences, step 1e-7 m), with the currents of
+    # trap_currents at each instant. The device (its bilinear tables, Verlet at 2 us) lands
+    # within measured 3.5e-8 m of them (asserted 1e-7 m), where the force moved them by 5e-5
+    # to 9e-4 m from free flight.
+    pick = np.array([0, 3, 6])
+    assert device.kept[pick].all()
+    lab = _magpylib_trajectories(cloud[pick] + (0.0, 0.0, 0.0, 0.0, 0.0, 20.0), schedule)
+    end = np.array([0.0, 0.0, float(schedule.position(schedule.duration))])
+    assert np.max(np.abs(device.final[pick, :3] - (lab[:, :3] - end))) < 1e-7
+    free = cloud[pick, :3] + cloud[pick, 3:] * schedule.duration
+    assert np.min(np.max(np.abs(lab[:, :3] - end - free), axis=1)) > 3e-5
+
+
+def _magpylib_trajectories(states: np.ndarray, schedule: tw.Schedule) -> np.ndarray:
+    """Lab-frame states (n, 6) at the end of ``schedule`` from scipy.integrate.solve_ivp (DOP853,
+    rtol 1e-9) of r'' = -mu grad|B| / m, |B| from magpylib (_magpylib_field) of the coils
+    carrying trap_currents at z_trap(t), grad|B| by central differences (step 1e-7 m)."""
+    n, step = states.shape[0], 1e-7
+    offsets = np.concatenate((step * np.eye(3), -step * np.eye(3)))
+
+    def rhs(t: float, y: np.ndarray) -> np.ndarray:
+        currents = tw.trap_currents(ROW, [float(schedule.position(t))], GRADIENT).currents[0]
+        points = (y[:3 * n].reshape(n, 3)[None, :, :] + offsets[:, None, :]).reshape(-1, 3)
+        size = np.linalg.norm(_magpylib_field(ROW, currents, points), axis=1).reshape(6, n)
+        gradient = ((size[:3] - size[3:]) / (2 * step)).T
+        return np.concatenate((y[3 * n:], (-OH.moment / OH.mass * gradient).ravel()))
+
+    y0 = np.concatenate((states[:, :3].ravel(), states[:, 3:].ravel()))
+    solution = solve_ivp(rhs, (0.0, schedule.duration), y0, method="DOP853", rtol=1e-9, atol=1e-12)
+    assert solution.success
+    return np.column_stack((solution.y[:3 * n, -1].reshape(n, 3), solution.y[3 * n:, -1].reshape(n, 3)))
 
 
 def _magpylib_field(array: tw.CoilArray, currents: np.ndarray, points: np.ndarray) -> np.ndarray:
@@ -171,13 +220,79 @@ def test_tracker_force_matches_magpylib_gradient(z_trap: float) -> None:
                  - np.linalg.norm(_magpylib_field(WOUND, currents, points - step * e), axis=1) for e in np.eye(3)]
     reference = -OH.moment / OH.mass * np.stack(magnitude, axis=1) / (2 * step)
     field_map = CoilFieldMap(WOUND, 0.005, 0.006 + 3 * WOUND.pitch)
-    kernel = _StepField(field_map, WOUND.first, 0.006, OH)
+    kernel = SummedCoilField(field_map, WOUND.first, 0.006, OH)
     carrying = np.flatnonzero(currents)
     kernel.load(carrying, currents[carrying], z_trap)
     mine = np.empty((3, points.shape[0]))
     kernel.acceleration(np.ascontiguousarray(points.T), mine)
     error = np.sqrt(np.mean((mine.T - reference) ** 2) / np.mean(reference**2))
     assert error < 1e-3
+
+
+SLOW = UniformMotion(1.0)  # trap speed [m/s] of the smooth case below
+SMOOTH_DURATION = 4e-4  # [s]: the particles stay between two coil planes, off the zero
+
+
+def _smooth_case() -> tuple[CoilFieldMap, np.ndarray, np.ndarray]:
+    """A case where the device's force is smooth in space and time: a map with one cell in
+    rho^2 and one pitch per axial cell (bilinear within a cell, so smooth there), 20 T/m
+    currents planned at 0 and at the end only (linear in t), and particles 1.5-3 mm ahead
+    of the zero that stay inside one cell (between the coil planes at 0 and 5 mm)."""
+    table = CoilFieldMap(ROW, 0.0056, BOX[2] + 3 * ROW.pitch, (2, 9))
+    plan = tw.trap_currents(ROW, SLOW.position(np.array([0.0, SMOOTH_DURATION])), 20.0).currents
+    rng = np.random.default_rng(8)
+    start = np.column_stack((rng.uniform(-2e-3, 2e-3, 6), rng.uniform(-2e-3, 2e-3, 6), rng.uniform(1.5e-3, 3e-3, 6),
+                             rng.normal(0.0, 2.0, (6, 3)) + (0.0, 0.0, SLOW.speed)))
+    return table, plan, start
+
+
+def _solve_ivp_reference(table: CoilFieldMap, plan: np.ndarray, start: np.ndarray) -> np.ndarray:
+    """Final trap-frame positions (n, 3) [m] from scipy.integrate.solve_ivp (DOP853, rtol 1e-13)
+    of the same lab-frame equations r'' = a(r, t): the summed coil field (public
+    SummedCoilField) of the currents interpolated linearly in time between the two plans."""
+    n = start.shape[0]
+    field = SummedCoilField(table, ROW.first, BOX[2] + table.z_step, OH)
+
+    def rhs(t: float, y: np.ndarray) -> np.ndarray:
+        currents = (1.0 - t / SMOOTH_DURATION) * plan[0] + t / SMOOTH_DURATION * plan[1]
+        carrying = np.flatnonzero(currents)
+        field.load(carrying, currents[carrying], float(SLOW.position(t)))
+        out = np.empty((3, n))
+        field.acceleration(np.ascontiguousarray(y[:3 * n].reshape(3, n)), out)
+        return np.concatenate((y[3 * n:], out.ravel()))
+
+    y0 = np.concatenate((start[:, :3].T.ravel(), start[:, 3:].T.ravel()))
+    solution = solve_ivp(rhs, (0.0, SMOOTH_DURATION), y0, method="DOP853", rtol=1e-13, atol=1e-16)
+    assert solution.success
+    return solution.y[:3 * n, -1].reshape(3, n).T - (0.0, 0.0, float(SLOW.position(SMOOTH_DURATION)))
+
+
+@pytest.mark.parametrize(("method", "order"), [("verlet", 2), ("yoshida4", 4)])
+def test_device_integrator_order_against_solve_ivp(method: str, order: int) -> None:
+    # Reference: scipy.integrate.solve_ivp (DOP853, an adaptive 8th-order Runge-Kutta
+    # method, rtol 1e-13; its own error, from rtol 1e-11 against 1e-13, is 2e-14 m) of the
+    # same lab-frame equations of motion in a smooth, time-dependent case (_smooth_case).
+    # Halving the step must divide the final position error by 2^order: 4 for velocity
+    # Verlet, 16 for Yoshida's 4th-order composition (H. Yoshida, Phys. Lett. A 150, 262
+    # (1990), from memory). Measured: Verlet 4.7e-7, 1.2e-7, 2.9e-8 m (ratios 4.001,
+    # 4.000); yoshida4 1.3e-9, 8.1e-11, 5.0e-12 m (ratios 16.001, 16.000).
+    table, plan, start = _smooth_case()
+    reference = _solve_ivp_reference(table, plan, start)
+    errors = []
+    for steps in (10, 20, 40):
+        result = track_device(ROW, [0.0, SMOOTH_DURATION], OH, start, schedule=SLOW, gradient=20.0,
+                              time_step=SMOOTH_DURATION / steps, duration=SMOOTH_DURATION, box_half_widths=BOX,
+                              method=method, field_map=table)
+        assert result.kept.all()
+        assert result.method.startswith(method)
+        errors.append(float(np.max(np.abs(result.final[:, :3] - reference))))
+    assert errors[0] < {"verlet": 1e-6, "yoshida4": 3e-9}[method]
+    for coarse, fine in zip(errors, errors[1:]):
+        assert coarse / fine == pytest.approx(2**order, rel=0.05)
+    # The force is not negligible: it moves the particles far more than the errors (free
+    # flight x = x0 + v t, elementary kinematics, misses the reference by > 0.1 mm).
+    free = start[:, :3] + start[:, 3:] * SMOOTH_DURATION - (0.0, 0.0, float(SLOW.position(SMOOTH_DURATION)))
+    assert np.max(np.abs(free - reference)) > 1e-4
 
 
 def test_planned_waveforms_converge_as_the_plan_step_squared() -> None:
@@ -245,6 +360,10 @@ def test_record_every_thins_the_survival_curve() -> None:
                               time_step=1e-5, duration=1e-4, box_half_widths=BOX), "particles"),
         (lambda: track_device(ROW, [0.0, 5e-5], OH, np.zeros((1, 6)), schedule=UniformMotion(1.0), gradient=1.0,
                               time_step=1e-5, duration=1e-4, box_half_widths=BOX), "plan_times"),
+        (lambda: track_device(ROW, None, OH, np.zeros((1, 6)), schedule=UniformMotion(1.0), gradient=1.0,
+                              time_step=1e-5, duration=1e-4, box_half_widths=BOX, method="rk4"), "'verlet', 'yoshida4'"),
+        (lambda: track_device(ROW, None, OH, np.zeros((1, 6)), schedule=UniformMotion(1.0), gradient=1.0,
+                              time_step=1e-12, duration=1e-4, box_half_widths=BOX), "time_step"),
     ],
 )
 def test_bad_input_names_the_argument(call, name: str) -> None:  # type: ignore[no-untyped-def]

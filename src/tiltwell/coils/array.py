@@ -32,7 +32,16 @@ from ..physics.fields import Coil, CoilSet
 from ..physics.hardware import ELECTRICAL_CAUTION
 from .schedule import Schedule
 
-__all__ = ["CoilArray", "CurrentPlan", "on_axis_response", "trap_currents", "waveforms"]
+__all__ = [
+    "CoilArray",
+    "CurrentPlan",
+    "check_coil_array",
+    "check_on_row",
+    "local_currents",
+    "on_axis_response",
+    "trap_currents",
+    "waveforms",
+]
 
 FloatArray = NDArray[np.float64]
 
@@ -151,7 +160,7 @@ def on_axis_response(array: CoilArray, z: ArrayLike) -> tuple[FloatArray, FloatA
     Jackson, Classical Electrodynamics, 3rd ed., section 5.5, from memory), whose slope is
     dB_z/dz = -3 mu0 I a^2 d / (2 (a^2 + d^2)^(5/2)).
     """
-    _check_array(array)
+    check_coil_array(array)
     points = as_finite_array(z, "z", "m", ndim=1)
     radii, offsets, weights = Coil(array.radius, 0.0, 1.0, array.turns, array.width, array.height).loops()
     planes = array.positions[:, None] + offsets[None, :]  # (N, F) filament planes
@@ -214,13 +223,16 @@ class CurrentPlan:
                     caution=ELECTRICAL_CAUTION)
 
 
-def _check_array(array: object) -> None:
+def check_coil_array(array: object) -> None:
+    """Raise :class:`~tiltwell.TiltwellError` naming ``array`` unless it is a :class:`CoilArray`."""
     if not isinstance(array, CoilArray):
         raise TiltwellError(f"array must be a CoilArray; got {type(array).__name__}")
 
 
-def _check_on_row(array: CoilArray, z: FloatArray, name: str) -> None:
-    """Raise unless all trap positions ``z`` [m] lie between the first and the last coil."""
+def check_on_row(array: CoilArray, z: FloatArray, name: str) -> None:
+    """Raise unless all trap positions ``z`` [m] (any shape) lie between the first and the last coil.
+
+    ``name`` is the argument named in the message (e.g. ``"z_trap"``)."""
     low, high = float(array.positions[0]), float(array.positions[-1])
     if z.size and (z.min() < low or z.max() > high):
         raise TiltwellError(
@@ -248,13 +260,36 @@ def _taper(array: CoilArray, distance: FloatArray) -> FloatArray:
     return np.sin(0.5 * np.pi * ramp) ** 2
 
 
-def _local_currents(array: CoilArray, z: FloatArray, target: float
-                    ) -> tuple[NDArray[np.int64], FloatArray, FloatArray, NDArray[np.bool_]]:
-    """The active coils (M, active), their currents (M, active) [A], the achieved gradient
-    (M,) [T/m] and the limited flags (M,) at positions ``z`` (checked by the caller).
+def local_currents(array: CoilArray, z: FloatArray, target: float
+                   ) -> tuple[NDArray[np.int64], FloatArray, FloatArray, NDArray[np.bool_]]:
+    """The currents of :func:`trap_currents`, for the active coils only, unchecked.
 
+    Parameters
+    ----------
+    array : CoilArray
+    z : ndarray, shape (M,)
+        Trap positions [m], float64 (the caller checks them, e.g. with :func:`check_on_row`;
+        positions off the row get the window of the nearest end).
+    target : float
+        Wanted on-axis gradient at the zero [T/m], > 0.
+
+    Returns
+    -------
+    coils : ndarray of int, shape (M, active)
+        Indices of the active coils at each position.
+    currents : ndarray, shape (M, active)
+        Their currents per turn [A].
+    gradient : ndarray, shape (M,)
+        Achieved on-axis gradient [T/m].
+    limited : ndarray of bool, shape (M,)
+        Where the current limit scaled the currents down.
+
+    Notes
+    -----
     Only the active coils' on-axis response is evaluated, so memory grows as M x active,
-    not M x count (see :func:`trap_currents` for the solve)."""
+    not M x count (see :func:`trap_currents` for the solve). Each position is solved on
+    its own: splitting ``z`` into pieces gives the same numbers.
+    """
     window = _windows(array, z)  # (M, active)
     centres = array.first + array.pitch * window  # (M, active)
     radii, offsets, weights = Coil(array.radius, 0.0, 1.0, array.turns, array.width, array.height).loops()
@@ -313,11 +348,11 @@ def trap_currents(array: CoilArray, z_trap: ArrayLike, gradient: float) -> Curre
     ``max_current`` all currents there are scaled down to meet it: the zero stays, the
     gradient falls by the same factor.
     """
-    _check_array(array)
+    check_coil_array(array)
     z = as_finite_array(z_trap, "z_trap", "m", ndim=1)
-    _check_on_row(array, z, "z_trap")
+    check_on_row(array, z, "z_trap")
     target = as_scalar(gradient, "gradient", "T/m", low=0.0, low_open=True)
-    window, local, achieved, limited = _local_currents(array, z, target)
+    window, local, achieved, limited = local_currents(array, z, target)
     currents = np.zeros((z.size, array.count))
     np.put_along_axis(currents, window, local, axis=1)
     return CurrentPlan(z, currents, achieved, limited)

@@ -14,7 +14,7 @@ from .._base.validation import TiltwellError, as_finite_array, as_integer, as_sc
 from ..wells.acceptance import trap_acceptance
 from .array import (
     CoilArray,
-    _check_array,
+    check_coil_array,
     on_axis_response,
     trap_currents,
 )
@@ -156,7 +156,7 @@ def moving_trap_phases(
     -------
     PhaseScan
     """
-    _check_array(array)
+    check_coil_array(array)
     if array.count < array.active + 1:
         raise TiltwellError(f"array.count must be >= active + 1 = {array.active + 1} for a phase scan; got {array.count}")
     if not isinstance(species, Species):

@@ -23,8 +23,8 @@ from numpy.typing import ArrayLike, NDArray
 
 from .._base.display import html_table
 from .._base.validation import TiltwellError, as_integer, as_points, as_scalar
-from ..coils.array import CoilArray, CurrentPlan, _check_array, trap_currents
-from .device import UniformMotion, _device_inputs, track_device
+from ..coils.array import CoilArray, CurrentPlan, check_coil_array, trap_currents
+from .device import UniformMotion, check_device_run, track_device
 from .fieldmap import FieldMap
 from ..physics.fields import Coil, CoilSet
 from ..coils.schedule import Schedule
@@ -101,7 +101,7 @@ class PhaseAveragedField:
     average: str = "magnitude"
 
     def __post_init__(self) -> None:
-        _check_array(self.array)
+        check_coil_array(self.array)
         if self.array.count < self.array.active + 1:
             raise TiltwellError(
                 f"array.count must be >= active + 1 = {self.array.active + 1} for a phase average; "
@@ -357,7 +357,7 @@ def compare_device(
     difference of the two runs also holds these interpolation errors, which a finer
     ``field_map_shape`` reduces.
     """
-    state, halves = _device_inputs(array, species, schedule, particles, box_half_widths)
+    state, halves = check_device_run(array, species, schedule, particles, box_half_widths)
     if duration is None:
         if not isinstance(schedule, Schedule):
             raise TiltwellError("duration [s] must be given for a UniformMotion schedule; got None")

@@ -93,7 +93,7 @@ class FieldMap:
     def force(self, points: ArrayLike) -> FloatArray:
         """Interpolated force [N], shape (N, 3), at ``points`` [m], shape (N, 3)."""
         positions = as_points(points)
-        return self._interpolate(positions.T, np.empty((3, positions.shape[0]))).T.copy()
+        return self.interpolate_rows(positions.T, np.empty((3, positions.shape[0]))).T.copy()
 
     def covers(self, bounds: tuple[tuple[float, float], ...]) -> bool:
         """Whether the map's box contains ``bounds`` (to 1e-12 of its size)."""
@@ -102,8 +102,26 @@ class FieldMap:
             for (low, high), (mine_low, mine_high) in zip(bounds, self.bounds)
         )
 
-    def _interpolate(self, positions: FloatArray, out: FloatArray, factor: float = 1.0) -> FloatArray:
-        """``factor`` times the force [N] into ``out`` (3, n) at ``positions`` (3, n) [m]."""
+    def interpolate_rows(self, positions: FloatArray, out: FloatArray, factor: float = 1.0) -> FloatArray:
+        """``factor`` times the interpolated force [N] into ``out`` at ``positions``, held as rows.
+
+        The unchecked kernel behind :meth:`force`, for trackers that keep particles as
+        component rows.
+
+        Parameters
+        ----------
+        positions : ndarray, shape (3, n)
+            Rows x, y, z [m], float64; not modified (points outside the box are clipped).
+        out : ndarray, shape (3, n)
+            Overwritten with ``factor`` times the force [N x the unit of factor].
+        factor : float
+            Scale of the result, e.g. 1 / mass for an acceleration [m/s^2].
+
+        Returns
+        -------
+        ndarray
+            ``out``.
+        """
         flat: NDArray[np.intp] | None = None
         fractions = []
         for axis, count in enumerate(self.shape):
@@ -132,5 +150,3 @@ class FieldMap:
                 out[component] += value
         return out
 
-
-# --- forces as accelerations on component rows -------------------------------------------

@@ -9,10 +9,14 @@ Methods (``method=``): ``"verlet"``, velocity Verlet (kick-drift-kick, 2nd order
 ``"yoshida4"``, the symmetric composition of three Verlet steps of sizes ``w1 h, w0 h,
 w1 h`` with ``w1 = 1 / (2 - 2^(1/3))``, ``w0 = -2^(1/3) w1`` (H. Yoshida, Phys. Lett. A
 150, 262 (1990); E. Forest and R. D. Ruth, Physica D 43, 105 (1990); from memory), 4th
-order. Time is advanced with the drifts, so a time-dependent force keeps the order.
+order. Time is advanced with the drifts, so a time-dependent force keeps the order. Both
+come from the registry :data:`~tiltwell.dynamics.integrators.INTEGRATORS`, which
+:func:`tiltwell.track_device` uses too; the inputs both trackers share are checked in
+:mod:`tiltwell.dynamics.checks`.
 
 Speed: the particles are held as component rows (6, n) and stepped by whole-array numpy
-operations; particles that leave are frozen and removed from the working arrays. An
+operations; particles that leave are frozen and removed from the working arrays. The force
+kernels are in :mod:`tiltwell.dynamics.kernels`: an
 :class:`~tiltwell.physics.fields.IdealQuadrupole` is evaluated inline (no per-call validation); a
 :class:`FieldMap` makes coil traps fast; any other source goes through ``Trap.force``.
 """
@@ -21,194 +25,23 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
-from typing import Any, Protocol
+from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .._base.display import html_table
-from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
-from .fieldmap import FieldMap
-from ..physics.fields import IdealQuadrupole
-from ..physics.species import LinearZeeman
+from .._base.validation import TiltwellError, as_integer, as_scalar
 from ..wells.traps import Trap
+from .checks import check_flag, check_particles, fixed_steps, progress_bar
+from .fieldmap import FieldMap
+from .integrators import SplittingScheme, integrator
+from .kernels import ForceKernel, force_kernel
+from .results import TrackingResult, tracking_result
 
 __all__ = ["FieldMap", "TrackingResult", "track"]
 
 FloatArray = NDArray[np.float64]
 Profile = Callable[[float], float]
-
-#: Most steps one call may take (the force schedule is tabulated per step).
-_MAX_STEPS = 10_000_000
-#: Below this |B|/B' [m] the quadrupole's cone tip is regularised (force magnitude stays <= the slope).
-_TIP = 1e-150
-#: Lost particles ride along until they are this fraction of the working set, then are removed.
-_COMPACT_FRACTION = 0.125
-
-
-class _Kernel(Protocol):
-    """``scale`` times the static trap acceleration [m/s^2] into ``out`` (3, n) at
-    ``positions`` (3, n) [m]; ``scratch`` (2, n) is free to use."""
-
-    compact_fraction: float
-
-    def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None: ...
-
-
-class _QuadrupoleKernel:
-    """``IdealQuadrupole`` inline: ``-W'(B' s) B' (x/4, y/4, z') / (m s)``, ``s = |B| / B'``.
-
-    The same formula as ``IdealQuadrupole.magnitude_gradient`` (zero where the field is
-    capped), without re-validating the positions at every step.
-    """
-
-    compact_fraction = _COMPACT_FRACTION
-
-    def __init__(self, trap: Trap, source: IdealQuadrupole) -> None:
-        self.gradient, self.center, self.mass = source.gradient, source.center, trap.mass
-        self.cap = source.max_field / source.gradient
-        zeeman = trap.species.zeeman
-        self.moment = zeeman.moment if type(zeeman) is LinearZeeman else None
-        self.zeeman = zeeman
-
-    def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None:
-        x, y, z = positions
-        size, factor = scratch[0], scratch[1]
-        np.multiply(x, x, out=size)
-        np.multiply(y, y, out=factor)
-        size += factor
-        size *= 0.25
-        shifted = z
-        if self.center != 0.0:
-            shifted = np.subtract(z, self.center, out=out[2])
-        np.multiply(shifted, shifted, out=factor)
-        size += factor
-        np.sqrt(size, out=size)
-        np.maximum(size, _TIP, out=factor)
-        if self.moment is not None:
-            np.divide(-scale * self.moment * self.gradient / self.mass, factor, out=factor)
-        else:
-            slope = np.asarray(self.zeeman.derivative(self.gradient * size))
-            np.divide(slope, factor, out=factor)
-            factor *= -scale * self.gradient / self.mass
-        if math.isfinite(self.cap):
-            np.putmask(factor, size > self.cap, 0.0)
-        np.multiply(factor, shifted, out=out[2])
-        factor *= 0.25
-        np.multiply(factor, x, out=out[0])
-        np.multiply(factor, y, out=out[1])
-
-
-class _MapKernel:
-    """A :class:`FieldMap` divided by the mass."""
-
-    compact_fraction = _COMPACT_FRACTION
-
-    def __init__(self, field_map: FieldMap, mass: float) -> None:
-        self.field_map, self.mass = field_map, mass
-
-    def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None:
-        self.field_map._interpolate(positions, out, scale / self.mass)
-
-
-class _TrapKernel:
-    """Any source, through ``Trap.force`` (lost particles are removed at once: outside the
-    box a coil source may be singular)."""
-
-    compact_fraction = 0.0
-
-    def __init__(self, trap: Trap) -> None:
-        self.trap = trap
-
-    def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None:
-        np.multiply(self.trap.force(positions.T, 0.0).T, scale / self.trap.mass, out=out)
-
-
-def _kernel(trap: Trap, field_map: FieldMap | None) -> _Kernel:
-    if field_map is not None:
-        return _MapKernel(field_map, trap.mass)
-    if type(trap.source) is IdealQuadrupole:
-        return _QuadrupoleKernel(trap, trap.source)
-    return _TrapKernel(trap)
-
-
-# --- integration schemes -----------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class _Scheme:
-    """A symmetric splitting ``K(k0) D(d1) K(k1) ... D(ds) K(ks)`` of the given order,
-    coefficients in units of the step; the force is evaluated after each drift, at the time
-    the drifts have reached (the last at the end of the step)."""
-
-    order: int
-    kicks: tuple[float, ...]
-    drifts: tuple[float, ...]
-
-
-_W1 = 1.0 / (2.0 - 2.0 ** (1.0 / 3.0))
-_W0 = -(2.0 ** (1.0 / 3.0)) * _W1
-_METHODS: dict[str, _Scheme] = {
-    "verlet": _Scheme(2, (0.5, 0.5), (1.0,)),
-    "yoshida4": _Scheme(4, (0.5 * _W1, 0.5 * (_W1 + _W0), 0.5 * (_W0 + _W1), 0.5 * _W1), (_W1, _W0, _W1)),
-}
-
-
-# --- the result ---------------------------------------------------------------------------
-
-
-@dataclass(frozen=True, eq=False)
-class TrackingResult:
-    """What :func:`track` returns.
-
-    Attributes
-    ----------
-    times : ndarray, shape (K,)
-        Recorded times [s], from 0 to the duration.
-    survival : ndarray, shape (K,)
-        Fraction of all particles still inside the box at ``times``.
-    final : ndarray, shape (N, 6)
-        Phase-space points (x, y, z, vx, vy, vz) [m, m/s] at the end, or at the end of the
-        step in which a particle left the box (just outside it).
-    kept : ndarray of bool, shape (N,)
-        Whether each particle is still inside at the end.
-    lost_time : ndarray, shape (N,)
-        End of the step in which each particle left [s]; 0 for one that started outside,
-        ``inf`` for kept ones.
-    method : str
-        The integration method.
-    time_step : float
-        The step used [s]: ``duration / ceil(duration / time_step)``.
-    """
-
-    times: FloatArray
-    survival: FloatArray
-    final: FloatArray
-    kept: NDArray[np.bool_]
-    lost_time: FloatArray
-    method: str
-    time_step: float
-
-    @property
-    def fraction(self) -> float:
-        """Fraction of the particles kept to the end."""
-        return float(np.count_nonzero(self.kept)) / self.kept.size
-
-    @property
-    def binomial_error(self) -> float:
-        """Standard error ``sqrt(p (1 - p) / N)`` of :attr:`fraction` as an estimate."""
-        p = self.fraction
-        return math.sqrt(p * (1.0 - p) / self.kept.size)
-
-    def _repr_html_(self) -> str:
-        rows = [
-            ("particles", f"{self.kept.size}"),
-            ("kept", f"{self.fraction:.4g} ± {self.binomial_error:.2g}"),
-            ("duration", f"{self.times[-1] * 1e3:.4g} ms"),
-            ("method, step", f"{self.method}, {self.time_step * 1e6:.4g} µs"),
-        ]
-        return html_table("Tracking", rows)
 
 
 # --- the driver ---------------------------------------------------------------------------
@@ -241,7 +74,7 @@ def track(
         Time to track [s], > 0.
     time_step : float
         Largest step [s], in (0, duration]; the step used is ``duration / ceil(duration /
-        time_step)`` (at most 1e7 steps).
+        time_step)`` (at most :data:`~tiltwell.dynamics.checks.MAX_STEPS` = 1e7 steps).
     deceleration : float or callable
         ``a`` [m/s^2] (> 0 slows the trap, which moves to +z), or ``a(t)`` of the time [s].
     method : {"verlet", "yoshida4"}
@@ -289,14 +122,9 @@ def track(
     """
     if not isinstance(trap, Trap):
         raise TiltwellError(f"trap must be a Trap; got {type(trap).__name__}")
-    state = as_finite_array(particles, "particles", "m, m/s")
-    if state.ndim != 2 or state.shape[1] != 6 or state.shape[0] < 1:
-        raise TiltwellError(f"particles [m, m/s] must have shape (N, 6) with N >= 1; got shape {state.shape}")
-    total = as_scalar(duration, "duration", "s", low=0.0, low_open=True)
-    largest = as_scalar(time_step, "time_step", "s", low=0.0, low_open=True, high=total)
-    if not isinstance(method, str) or method not in _METHODS:
-        raise TiltwellError(f"method must be one of {', '.join(map(repr, _METHODS))}; got {method!r}")
-    scheme = _METHODS[method]
+    state = check_particles(particles)
+    total, steps, dt = fixed_steps(duration, time_step)
+    scheme = integrator(method)
     if field_map is not None:
         if not isinstance(field_map, FieldMap):
             raise TiltwellError(f"field_map must be a FieldMap or None; got {type(field_map).__name__}")
@@ -304,15 +132,8 @@ def track(
             raise TiltwellError(f"field_map must cover the trap bounds {trap.bounds} m; it covers {field_map.bounds} m")
     size = as_integer(chunk, "chunk", 1)
     every = as_integer(record_every, "record_every", 1)
-    if not isinstance(progress, (bool, np.bool_)):
-        raise TiltwellError(f"progress must be True or False; got {progress!r}")
-    steps = math.ceil(total / largest * (1.0 - 1e-12))
-    if steps > _MAX_STEPS:
-        raise TiltwellError(f"duration / time_step must be at most {_MAX_STEPS:g} steps; got {steps:g}")
-    dt = total / steps
-    offsets = np.cumsum(scheme.drifts)
-    offsets[-1] = 1.0
-    moments = np.concatenate([[0.0], (np.arange(steps)[:, None] + offsets[None, :]).ravel()]) * dt
+    shown = check_flag(progress, "progress")
+    moments = scheme.force_times(steps, dt)
     tilts = _profile(deceleration, "deceleration", "m/s^2", moments, -math.inf, math.inf)
     scales = np.ones(moments.size) if ramp is None else _profile(ramp, "ramp", "1", moments, 0.0, 1.0, needs_callable=True)
 
@@ -320,34 +141,12 @@ def track(
     final = state.copy()
     lost_step = np.full(count, steps + 1, dtype=np.int64)
     lower, upper = (np.array([pair[k] for pair in trap.bounds])[:, None] for k in (0, 1))
-    stepper = _Stepper(_kernel(trap, field_map), scheme, dt, tilts, scales, lower, upper, steps)
-    bar = _progress_bar(math.ceil(count / size) * steps) if progress else None
-    try:
+    stepper = _Stepper(force_kernel(trap, field_map), scheme, dt, tilts, scales, lower, upper, steps)
+    with progress_bar(shown, math.ceil(count / size) * steps) as bar:
         for start in range(0, count, size):
             stop = min(start + size, count)
             stepper.run(state[start:stop], start, steps, final, lost_step, bar)
-    finally:
-        if bar is not None:
-            bar.close()
-
-    return _result(final, lost_step, steps, dt, every, method)
-
-
-def _result(final: FloatArray, lost_step: NDArray[np.int64], steps: int, dt: float, every: int,
-            method: str) -> TrackingResult:
-    """The :class:`TrackingResult` of a run of ``steps`` steps of ``dt`` [s], from the step at
-    whose end each particle left (0: it started outside; ``steps + 1``: it stayed), with the
-    survival recorded every ``every`` steps and at the end. Shared with
-    :func:`tiltwell.track_device`."""
-    count = lost_step.size
-    recorded = np.unique(np.append(np.arange(0, steps + 1, every), steps))
-    survival = (count - np.searchsorted(np.sort(lost_step), recorded, side="right")) / count
-    kept = lost_step > steps
-    lost_time = np.where(kept, np.inf, lost_step * dt)
-    arrays = (recorded * dt, survival, final, kept, lost_time)
-    for array in arrays:
-        array.setflags(write=False)
-    return TrackingResult(*arrays, method, dt)
+    return tracking_result(final, lost_step, steps, dt, every, method)
 
 
 class _Stepper:
@@ -361,7 +160,7 @@ class _Stepper:
     """
 
     def __init__(
-        self, kernel: _Kernel, scheme: _Scheme, dt: float, tilts: FloatArray, scales: FloatArray,
+        self, kernel: ForceKernel, scheme: SplittingScheme, dt: float, tilts: FloatArray, scales: FloatArray,
         lower: FloatArray, upper: FloatArray, steps: int,
     ) -> None:
         k = scheme.kicks
@@ -465,11 +264,3 @@ def _profile(
             f"{name}(t) [{unit}] must be finite and in [{low:g}, {high:g}]; got {values[k]!r} at t={times[k]!r} s"
         )
     return values
-
-
-def _progress_bar(total: int) -> Any:
-    try:  # imported only when asked for: no display code otherwise
-        from tqdm.auto import tqdm
-    except ImportError:
-        raise TiltwellError("progress=True needs the tqdm package (pip install tqdm); got progress=True") from None
-    return tqdm(total=total, desc="tracking", unit="step")
