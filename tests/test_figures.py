@@ -29,6 +29,7 @@ from matplotlib.figure import Figure
 import tiltwell as tw
 from tiltwell import figures, scenario
 from tiltwell.cli import DEMO_SCENARIO, main
+from tiltwell.cli.drawings import write_scenario_figures
 from tiltwell.physics.constants import millikelvin
 
 GRADIENT, MAX_FIELD = 250.0, 0.8  # T/m, T: the README's ideal quadrupole
@@ -230,7 +231,7 @@ def stopping_row(deceleration: float, overlap: float, energy: float) -> dict[str
 
 def test_tradeoff_draws_the_rows_in_order_with_length_on_a_twin_axis(no_pyplot_state: list[Figure]) -> None:
     rows = [stopping_row(1.6e5, 0.05, 0.04), stopping_row(4e4, 0.30, 0.28), stopping_row(8e4, 0.2, 0.18)]
-    figure = figures.tradeoff(rows, current=8e4)
+    figure = figures.tradeoff_plot(rows, current=8e4)
     no_pyplot_state.append(figure)
     overlap = artist(figure, "captured_fraction_overlap")
     np.testing.assert_allclose(overlap.get_xdata(), [40.0, 80.0, 160.0])  # 10^3 m/s^2
@@ -244,13 +245,13 @@ def test_tradeoff_draws_the_rows_in_order_with_length_on_a_twin_axis(no_pyplot_s
 
 def test_tradeoff_rejects_rows_without_deceleration() -> None:
     with pytest.raises(tw.TiltwellError, match="rows"):
-        figures.tradeoff([{"length": 1.0}])
+        figures.tradeoff_plot([{"length": 1.0}])
 
 
 def test_acceptance_curve_follows_the_tilted_v_closed_form(trap: tw.Trap, no_pyplot_state: list[Figure]) -> None:
     decelerations = np.linspace(0.0, 1.1 * CRITICAL, 9)  # misses a_c itself, where the well is flat
     curve = tw.acceptance_curve(trap, decelerations)
-    figure = figures.acceptance_curve(curve, current=0.5 * CRITICAL)
+    figure = figures.acceptance_against_deceleration(curve, current=0.5 * CRITICAL)
     no_pyplot_state.append(figure)
     longitudinal = artist(figure, "acceptance-longitudinal")
     np.testing.assert_allclose(longitudinal.get_xdata(), decelerations * 1e-3)
@@ -264,7 +265,7 @@ def test_acceptance_curve_follows_the_tilted_v_closed_form(trap: tw.Trap, no_pyp
 def test_time_of_flight_histogram_is_numpys_and_ignores_inf(no_pyplot_state: list[Figure]) -> None:
     rng = np.random.default_rng(3)
     times = np.concatenate([rng.uniform(2e-3, 9e-3, 200), [np.inf] * 7])  # s
-    figure = figures.arrival_times(times, bins=12)
+    figure = figures.time_of_flight(times, bins=12)
     no_pyplot_state.append(figure)
     stairs = artist(figure, "time-of-flight")
     counts, edges = np.histogram(times[:200] * 1e3, bins=12)  # numpy on the finite times, in ms
@@ -378,8 +379,8 @@ def demo_scenario(**simulation: Any) -> scenario.Scenario:
 
 def test_scenario_figures_writes_every_figure(tmp_path: Path) -> None:
     demo = demo_scenario(detector_distance=0.1)
-    written = figures.scenario_figures(demo, tmp_path / "out", formats=("svg", "png"), width=3.0, height=2.0,
-                                       dpi=100, particles=2000)
+    written = write_scenario_figures(demo, tmp_path / "out", formats=("svg", "png"), width=3.0, height=2.0,
+                                     dpi=100, particles=2000)
     expected = [tmp_path / "out" / f"{name}.{kind}" for name in [*NAMES, "time-of-flight"] for kind in ("svg", "png")]
     assert written == expected
     assert all(path.stat().st_size > 0 for path in written)

@@ -12,6 +12,7 @@ reports, sweeps); :mod:`.figures`, :mod:`.explorer` and :mod:`.cli` (layer 4, th
 from typing import Any
 
 from ._base.validation import TiltwellError
+from ._base.version import VERSION
 from .physics.beam import Beam, PhasePlane
 from .physics.constants import from_millikelvin, millikelvin
 from .physics.fields import Coil, CoilSet, IdealQuadrupole, anti_helmholtz, loop_field
@@ -42,7 +43,7 @@ from .workflows.report import build, summarise
 from .workflows.scenario import Scenario
 from .workflows.sweep import sweep
 
-__version__ = "0.1.0"
+__version__ = VERSION
 
 
 def __getattr__(name: str) -> Any:

@@ -136,10 +136,11 @@ def _print_device(numbers: dict[str, Any]) -> None:
 
 def _coil_figures(scenario: scenario_module.Scenario, run: Any, scan: Any, check: Any, folder: str) -> list[Path]:
     from ..figures import coil_figures, device_arrivals, device_phase_space, device_survival, save
+    from ..workflows.figure_data import coil_figure_data
 
     target = Path(folder)
     target.mkdir(parents=True, exist_ok=True)
-    drawings = coil_figures(run, scan)
+    drawings = coil_figures(coil_figure_data(run, scan))
     if check is not None:
         drawings["device-survival"] = device_survival(check)
         drawings["device-phase-space"] = device_phase_space(check)

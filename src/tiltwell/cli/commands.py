@@ -10,7 +10,9 @@ gives the acceptance of an ideal quadrupole trap of finite depth, a first estima
 ``tiltwell coils FILE [--json] [--csv FILE] [--track N] [--figures DIR]`` sizes the
 scenario's coil row (``[coils]``), writes its current waveform table, tracks N particles of
 the beam through the row and through its rigid twin, and draws it.
-Errors print one line and exit with status 2, never a traceback.
+Errors print one line and exit with status 2, never a traceback; output piped into a
+reader that stops early (``tiltwell keys | head -1``) ends quietly with status 0.
+``tiltwell --version`` prints the version; the grammar is :mod:`.parser`.
 """
 
 from __future__ import annotations
@@ -19,7 +21,7 @@ import argparse
 import json
 import os
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
@@ -37,6 +39,7 @@ from ..physics.species import catalogue, species
 from ..workflows.sweep import sweep, sweep_csv
 from ..workflows.demo import DEMO_SCENARIO
 from ..wells.traps import Trap
+from .parser import build_parser
 
 
 __all__ = ["main", "quadrupole_summary"]
@@ -187,99 +190,72 @@ def _demo(out: str, as_json: bool) -> None:
 
 
 def _figures(arguments: argparse.Namespace) -> None:
-    from ..figures import scenario_figures  # matplotlib is loaded only for this command
+    from .drawings import write_scenario_figures  # matplotlib is loaded only for this command
 
     scenario = scenario_module.load(arguments.file)
     formats = tuple(part.strip() for part in arguments.formats.split(","))
-    for path in scenario_figures(scenario, arguments.out, formats=formats, width=arguments.width,
-                                 height=arguments.height, dpi=arguments.dpi):
+    for path in write_scenario_figures(scenario, arguments.out, formats=formats, width=arguments.width,
+                                       height=arguments.height, dpi=arguments.dpi):
         print(f"wrote {path}")
 
 
-def _parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="tiltwell", description=__doc__.splitlines()[0])
-    commands = parser.add_subparsers(dest="command", required=True)
-    run = commands.add_parser("run", help="compute a scenario file")
-    run.add_argument("file")
-    run.add_argument("--json", action="store_true", help="print one JSON object (SI units)")
-    run.add_argument("--progress", action="store_true", help="show a progress bar for the trajectories")
-    run.add_argument("--timing", metavar="CSV", help="also write the coil timing table (needs pitch, peak_current)")
-    sweeping = commands.add_parser("sweep", help="trade-off table over decelerations (or lengths), as CSV")
-    sweeping.add_argument("file")
-    sweeping.add_argument("--start", type=float, required=True, help="first deceleration [m/s^2] (or length [m])")
-    sweeping.add_argument("--stop", type=float, required=True, help="last deceleration [m/s^2] (or length [m])")
-    sweeping.add_argument("--points", type=int, default=11, help="number of points, default 11")
-    sweeping.add_argument("--lengths", action="store_true", help="sweep the length [m] instead")
-    sweeping.add_argument("--out", help="CSV file to write (default: standard output)")
-    sweeping.add_argument("--workers", type=int, default=1, help="processes to use, default 1")
-    sweeping.add_argument("--quiet", action="store_true", help="no progress bar")
-    demo = commands.add_parser("demo", help="write the invented demo scenario and run it")
-    demo.add_argument("--out", required=True, help="folder for the demo files")
-    demo.add_argument("--json", action="store_true", help="print the summary as one JSON object")
-    drawing = commands.add_parser("figures", help="write a scenario's figures (PDF, SVG, PNG) for proposals")
-    drawing.add_argument("file")
-    drawing.add_argument("--out", required=True, help="folder for the figures (created if missing)")
-    drawing.add_argument("--formats", default="pdf,svg,png", help="comma-separated, from pdf, svg, png; default all")
-    drawing.add_argument("--width", type=float, default=6.0, help="figure width [in], default 6.0")
-    drawing.add_argument("--height", type=float, default=4.0, help="figure height [in], default 4.0")
-    drawing.add_argument("--dpi", type=float, default=300.0, help="resolution [1/in], default 300")
-    commands.add_parser("keys", help="every scenario key with unit, range and meaning")
-    listing = commands.add_parser("species", help="list the species catalogue or show one species")
-    listing.add_argument("name", nargs="?")
-    quad = commands.add_parser("quadrupole", help="acceptance of an ideal quadrupole of finite depth")
-    quad.add_argument("species")
-    quad.add_argument("--gradient", type=float, required=True, help="axial gradient [T/m]")
-    quad.add_argument("--max-field", type=float, required=True, help="field where the depth is cut [T]")
-    quad.add_argument("--deceleration", type=float, default=0.0, help="[m/s^2], default 0")
-    quad.add_argument("--json", action="store_true", help="print one JSON object")
-    row = commands.add_parser("coils", help="size the scenario's coil row ([coils]) and write its waveforms")
-    row.add_argument("file")
-    row.add_argument("--json", action="store_true", help="print one JSON object (SI units)")
-    row.add_argument("--csv", metavar="FILE", help="write the current waveform of every coil (with cautions)")
-    row.add_argument("--track", type=int, metavar="N", help="track N particles of the beam through the coil row "
-                     "and through its rigid twin (slow: minutes for 1e5)")
-    row.add_argument("--figures", metavar="DIR", help="write the coil figures (PNG) to this folder")
-    row.add_argument("--progress", action="store_true", help="progress bars while tracking")
-    return parser
+def _coils(arguments: argparse.Namespace) -> None:
+    from .coils import coils_command  # the coil-row modules load only for this command
+
+    coils_command(arguments)
+
+
+def _quadrupole(arguments: argparse.Namespace) -> None:
+    summary = quadrupole_summary(arguments.species, arguments.gradient, arguments.max_field, arguments.deceleration)
+    if arguments.json:
+        print(json.dumps(summary))
+    else:
+        _print_quadrupole(summary)
+
+
+#: What each subcommand of :func:`tiltwell.cli.parser.build_parser` runs.
+_COMMANDS: dict[str, Callable[[argparse.Namespace], None]] = {
+    "run": lambda arguments: _run(arguments.file, arguments.json, arguments.progress, arguments.timing),
+    "sweep": _sweep,
+    "demo": lambda arguments: _demo(arguments.out, arguments.json),
+    "figures": _figures,
+    "keys": lambda arguments: print(scenario_module.describe()),
+    "species": lambda arguments: _print_species(arguments.name),
+    "quadrupole": _quadrupole,
+    "coils": _coils,
+}
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``tiltwell`` console script; returns the exit status."""
-    arguments = _parser().parse_args(argv)
+    arguments = build_parser().parse_args(argv)
     try:
-        if arguments.command == "run":
-            _run(arguments.file, arguments.json, arguments.progress, arguments.timing)
-        elif arguments.command == "sweep":
-            _sweep(arguments)
-        elif arguments.command == "demo":
-            _demo(arguments.out, arguments.json)
-        elif arguments.command == "figures":
-            _figures(arguments)
-        elif arguments.command == "keys":
-            print(scenario_module.describe())
-        elif arguments.command == "species":
-            _print_species(arguments.name)
-        elif arguments.command == "coils":
-            from .coils import coils_command  # the coil-row modules load only for this command
-
-            coils_command(arguments)
-        else:
-            summary = quadrupole_summary(
-                arguments.species, arguments.gradient, arguments.max_field, arguments.deceleration
-            )
-            if arguments.json:
-                print(json.dumps(summary))
-            else:
-                _print_quadrupole(summary)
+        _COMMANDS[arguments.command](arguments)
+        sys.stdout.flush()  # here, so that a reader gone early is met inside this try
     except TiltwellError as error:
         print(f"tiltwell: error: {error}", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into a reader that stopped early (e.g. head): not an error
+        _silence_stdout()
+        return 0
     except OSError as error:
         print(f"tiltwell: error: {error.filename or ''}: {error.strerror}", file=sys.stderr)
         return 2
-    except BrokenPipeError:  # output piped into a reader that stopped early (e.g. head)
-        sys.stdout = open(os.devnull, "w")  # noqa: SIM115 - silence the flush at exit
     return 0
+
+
+def _silence_stdout() -> None:
+    """Point standard output at the null device, so that the interpreter's final flush of
+    what is still buffered does not fail a second time (and report it) on the closed pipe."""
+    try:
+        descriptor = sys.stdout.fileno()
+    except (AttributeError, OSError, ValueError):  # not a real file (e.g. captured by a test): nothing to flush
+        return
+    null = os.open(os.devnull, os.O_WRONLY)
+    try:
+        os.dup2(null, descriptor)
+    finally:
+        os.close(null)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -18,7 +18,7 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from numpy.typing import ArrayLike
 
-from .style import _C, _canvas, _legend, _styled
+from .style import PALETTE, add_legend, canvas, styled
 from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
 from ..coils.array import CurrentPlan
 from ..physics.constants import millikelvin
@@ -32,15 +32,15 @@ __all__ = ["current_pulses", "device_arrivals", "device_phase_space", "device_su
 #: Coils drawn by :func:`current_pulses` when none are named.
 DEFAULT_COILS = 6
 _SERIES = (("blue", "-"), ("rose", "--"), ("teal", "-."), ("amber", ":"), ("slate", "-"), ("ink", "--"))
-_RIGID: dict[str, Any] = {"color": _C["teal"], "ls": "--"}
-_DEVICE: dict[str, Any] = {"color": _C["blue"], "ls": "-"}
+_RIGID: dict[str, Any] = {"color": PALETTE["teal"], "ls": "--"}
+_DEVICE: dict[str, Any] = {"color": PALETTE["blue"], "ls": "-"}
 
 
 def _caution(ax: Axes) -> None:
     """The electrical caution in small type under the x label (gid ``electrical-caution``),
     wrapped at draw time to the figure's width (so it fits whatever size it is saved at)."""
     ax.annotate(ELECTRICAL_CAUTION, xy=(0.0, 0.0), xycoords=("axes fraction", ax.xaxis.label), xytext=(0.0, -4.0),
-                textcoords="offset points", ha="left", va="top", fontsize=6.0, color=_C["ink"], wrap=True,
+                textcoords="offset points", ha="left", va="top", fontsize=6.0, color=PALETTE["ink"], wrap=True,
                 gid="electrical-caution")
 
 
@@ -59,7 +59,7 @@ def _window(plan: CurrentPlan, coils: Sequence[int] | None) -> list[int]:
     return [int(k) for k in used[start:start + DEFAULT_COILS]]
 
 
-@_styled
+@styled
 def current_pulses(plan: CurrentPlan, times: ArrayLike, *, coils: Sequence[int] | None = None,
                    ax: Axes | None = None) -> Figure:
     """Current per turn of a window of coils against time, with the electrical caution.
@@ -86,20 +86,20 @@ def current_pulses(plan: CurrentPlan, times: ArrayLike, *, coils: Sequence[int] 
     if t.shape != plan.positions.shape:
         raise TiltwellError(f"times [s] must have shape {plan.positions.shape} (one per plan row); got shape {t.shape}")
     chosen = _window(plan, coils)
-    figure, ax = _canvas(ax)
+    figure, ax = canvas(ax)
     for n, k in enumerate(chosen):
         colour, style = _SERIES[n % len(_SERIES)]
-        ax.plot(t * 1e3, plan.currents[:, k], color=_C[colour], ls=style, label=f"coil {k}", gid=f"coil-{k}")
-    ax.axhline(0.0, color=_C["slate"], lw=0.5, zorder=0)
+        ax.plot(t * 1e3, plan.currents[:, k], color=PALETTE[colour], ls=style, label=f"coil {k}", gid=f"coil-{k}")
+    ax.axhline(0.0, color=PALETTE["slate"], lw=0.5, zorder=0)
     ax.set_xlabel("time since switch-on [ms]")
     ax.set_ylabel("current per turn [A]")
     ax.set_title(f"coil currents, coils {chosen[0]} to {chosen[-1]}" if len(chosen) > 1 else f"coil {chosen[0]} current")
-    _legend(ax, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+    add_legend(ax, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     _caution(ax)
     return figure
 
 
-@_styled
+@styled
 def phase_scan(scan: PhaseScan, *, ax: Axes | None = None) -> Figure:
     """Depth [mK] (left axis) and acceptances [mm·m/s] (right axis) against phase / pitch.
 
@@ -113,21 +113,21 @@ def phase_scan(scan: PhaseScan, *, ax: Axes | None = None) -> Figure:
         raise TiltwellError(f"scan must be a PhaseScan; got {type(scan).__name__}")
     count = scan.phases.size
     x = np.arange(count) / count if count > 1 else np.zeros(1)
-    figure, ax = _canvas(ax)
+    figure, ax = canvas(ax)
     right = ax.twinx()
     depth = millikelvin(scan.depth)
-    ax.plot(x, depth, color=_C["ink"], marker="o", ms=3.5, label="depth", gid="depth")
-    ax.axhline(float(np.mean(depth)), color=_C["ink"], lw=0.7, ls=(0, (1, 2)),
+    ax.plot(x, depth, color=PALETTE["ink"], marker="o", ms=3.5, label="depth", gid="depth")
+    ax.axhline(float(np.mean(depth)), color=PALETTE["ink"], lw=0.7, ls=(0, (1, 2)),
                label="phase averages (thin lines)", gid="mean-depth")
     for values, mean, colour, style, marker, name, label in (
         (scan.longitudinal, scan.mean_longitudinal, "blue", "-", "s", "longitudinal", "longitudinal (z, $v_z$)"),
         (scan.transverse, scan.mean_transverse, "rose", "--", "D", "transverse", "transverse (x, $v_x$)"),
     ):
-        right.plot(x, values * 1e3, color=_C[colour], ls=style, marker=marker, ms=3.5, label=label,
+        right.plot(x, values * 1e3, color=PALETTE[colour], ls=style, marker=marker, ms=3.5, label=label,
                    gid=f"acceptance-{name}")
-        right.axhline(mean * 1e3, color=_C[colour], lw=0.7, ls=(0, (4, 2)), label="_nolegend_", gid=f"mean-{name}")
+        right.axhline(mean * 1e3, color=PALETTE[colour], lw=0.7, ls=(0, (4, 2)), label="_nolegend_", gid=f"mean-{name}")
     worst = scan.worst
-    ax.axvline(float(x[worst]), color=_C["amber"], lw=1.0, ls=":", label=f"worst phase {x[worst]:.3g}",
+    ax.axvline(float(x[worst]), color=PALETTE["amber"], lw=1.0, ls=":", label=f"worst phase {x[worst]:.3g}",
                gid="worst-phase")
     ax.set_ylim(bottom=0.0)
     right.set_ylim(bottom=0.0)
@@ -147,13 +147,13 @@ def _check(comparison: DeviceComparison) -> None:
         raise TiltwellError(f"comparison must be a DeviceComparison; got {type(comparison).__name__}")
 
 
-@_styled
+@styled
 def device_survival(comparison: DeviceComparison, *, ax: Axes | None = None) -> Figure:
     """Fraction still trapped against time [ms] in the rigid twin (gid ``survival-rigid``)
     and the coil array (gid ``survival-device``); the title gives the ripple loss with its
     paired standard error."""
     _check(comparison)
-    figure, ax = _canvas(ax)
+    figure, ax = canvas(ax)
     for result, name, label, style in ((comparison.rigid, "rigid", "rigid twin (phase-averaged)", _RIGID),
                                        (comparison.device, "device", "coil array", _DEVICE)):
         ax.plot(result.times * 1e3, result.survival, **style,
@@ -163,32 +163,32 @@ def device_survival(comparison: DeviceComparison, *, ax: Axes | None = None) -> 
     ax.set_ylabel("fraction still trapped")
     ax.set_title(f"survival: ripple loss {comparison.ripple_loss:.3g} ± {comparison.ripple_loss_error:.2g} "
                  f"(paired, {comparison.rigid.kept.size} particles)")
-    _legend(ax, loc="upper right")
+    add_legend(ax, loc="upper right")
     return figure
 
 
-@_styled
+@styled
 def device_phase_space(comparison: DeviceComparison, *, ax: Axes | None = None) -> Figure:
     """Final (z [mm], v_z [m/s]) in the trap frame of the particles each run keeps (gids
     ``phase-space-rigid``, open circles, and ``phase-space-device``, dots)."""
     _check(comparison)
-    figure, ax = _canvas(ax)
+    figure, ax = canvas(ax)
     common: dict[str, Any] = {"linewidths": 0.6, "rasterized": True}
     rigid, device = comparison.rigid, comparison.device
     ax.scatter(rigid.final[rigid.kept, 2] * 1e3, rigid.final[rigid.kept, 5], s=9.0, facecolors="none",
-               edgecolors=_C["teal"], marker="o", label=f"rigid twin ({int(np.count_nonzero(rigid.kept))} kept)",
+               edgecolors=PALETTE["teal"], marker="o", label=f"rigid twin ({int(np.count_nonzero(rigid.kept))} kept)",
                gid="phase-space-rigid", zorder=1, **common)
-    ax.scatter(device.final[device.kept, 2] * 1e3, device.final[device.kept, 5], s=2.5, color=_C["blue"],
+    ax.scatter(device.final[device.kept, 2] * 1e3, device.final[device.kept, 5], s=2.5, color=PALETTE["blue"],
                marker="o", label=f"coil array ({int(np.count_nonzero(device.kept))} kept)", gid="phase-space-device",
                zorder=2, **common)
     ax.set_xlabel("z [mm]")
     ax.set_ylabel("$v_z$ [m/s]")
     ax.set_title(f"final phase space relative to the trap centre, t = {comparison.release_time * 1e3:.3g} ms")
-    _legend(ax, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+    add_legend(ax, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     return figure
 
 
-@_styled
+@styled
 def device_arrivals(comparison: DeviceComparison, distance: float, *, bins: int | ArrayLike = 50,
                     ax: Axes | None = None) -> Figure:
     """Time-of-flight histograms, from switch-on, of both runs' kept particles at a detector
@@ -217,7 +217,7 @@ def device_arrivals(comparison: DeviceComparison, distance: float, *, bins: int 
             edges = np.linspace(0.0, 1.0, int(bins) + 1)
     else:
         edges = np.asarray(bins, dtype=np.float64)
-    figure, ax = _canvas(ax)
+    figure, ax = canvas(ax)
     for times, name, label, style in ((rigid, "rigid", "rigid twin", _RIGID), (device, "device", "coil array", _DEVICE)):
         counts, shared = arrival_histogram(times, edges)
         late = int(np.count_nonzero(np.isfinite(times) & (times > shared[-1])))
@@ -228,5 +228,5 @@ def device_arrivals(comparison: DeviceComparison, distance: float, *, bins: int 
     ax.set_xlabel("time since switch-on [ms]")
     ax.set_ylabel("particles per bin")
     ax.set_title(f"time of flight to a detector {plane * 1e3:.4g} mm beyond the release point")
-    _legend(ax, loc="upper right")
+    add_legend(ax, loc="upper right")
     return figure

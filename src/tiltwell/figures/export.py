@@ -1,0 +1,107 @@
+"""Writing figures to files: PDF, SVG or PNG, atomically and byte for byte reproducible
+(no dates in the metadata), one figure or a named set into a folder. :mod:`tiltwell.figures`
+re-exports :func:`save` and :func:`write_figures`."""
+
+from __future__ import annotations
+
+import io
+import os
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from matplotlib.figure import Figure
+
+from .._base.files import atomic_write_bytes
+from .._base.validation import TiltwellError, as_scalar
+from .style import style_context
+
+__all__ = ["check_export", "export_formats", "save", "write_figures"]
+
+#: Suffix -> matplotlib format, and the metadata that would make files differ run to run.
+_FORMATS: dict[str, tuple[str, dict[str, Any]]] = {
+    ".pdf": ("pdf", {"CreationDate": None}), ".svg": ("svg", {"Date": None}), ".png": ("png", {})}
+#: Largest figure side [in] and resolution [1/in] accepted.
+MAX_SIZE = 100.0
+MAX_DPI = 2400.0
+
+
+def save(figure: Figure, path: str | os.PathLike[str], *, width: float | None = None, height: float | None = None,
+         dpi: float = 300) -> Path:
+    """Write ``figure`` to ``path`` as PDF, SVG or PNG (chosen by the suffix), atomically.
+
+    Parameters
+    ----------
+    width, height : float, optional
+        Size [in], in (0, 100]; by default the figure's own. The figure gets its size back
+        afterwards. A PNG is ``int(width * dpi)`` x ``int(height * dpi)`` pixels.
+    dpi : float
+        Dots per inch, in (0, 2400]: the PNG's resolution and that of rasterised parts of
+        PDF and SVG (dense particle clouds).
+
+    Returns the ``path``, replaced only once the whole file is written.
+    """
+    if not isinstance(figure, Figure):
+        raise TiltwellError(f"figure must be a matplotlib Figure; got {type(figure).__name__}")
+    target = Path(path)
+    if target.suffix.lower() not in _FORMATS:
+        raise TiltwellError(f"path must end in .pdf, .svg or .png; got {str(path)!r}")
+    if not target.parent.is_dir():
+        raise TiltwellError(f"path must be in an existing folder; got {str(path)!r}")
+    kind, metadata = _FORMATS[target.suffix.lower()]
+    old = (float(figure.get_size_inches()[0]), float(figure.get_size_inches()[1]))
+    size = (
+        old[0] if width is None else as_scalar(width, "width", "in", low=0.0, high=MAX_SIZE, low_open=True),
+        old[1] if height is None else as_scalar(height, "height", "in", low=0.0, high=MAX_SIZE, low_open=True),
+    )
+    dots = as_scalar(dpi, "dpi", "1/in", low=0.0, high=MAX_DPI, low_open=True)
+    buffer = io.BytesIO()
+    try:
+        figure.set_size_inches(size)
+        with style_context():
+            figure.savefig(buffer, format=kind, dpi=dots, metadata=metadata)
+    finally:
+        figure.set_size_inches(old)
+    return atomic_write_bytes(target, buffer.getvalue())
+
+
+def export_formats(formats: Any) -> tuple[str, ...]:
+    """The file formats asked for, checked: a name or a non-empty sequence of names from
+    ``pdf``, ``svg``, ``png``; duplicates dropped, order kept."""
+    kinds = (formats,) if isinstance(formats, str) else tuple(formats)
+    allowed = [suffix[1:] for suffix in _FORMATS]
+    if not kinds or any(kind not in allowed for kind in kinds):
+        raise TiltwellError(f"formats must be a non-empty list of {', '.join(allowed)}; got {formats!r}")
+    return tuple(dict.fromkeys(kinds))
+
+
+def check_export(out: str | os.PathLike[str], *, formats: Any = ("pdf", "svg", "png"), width: float = 6.0,
+                 height: float = 4.0, dpi: float = 300) -> tuple[Path, tuple[str, ...]]:
+    """Check the options of :func:`write_figures` before anything is computed or created.
+
+    Returns the folder ``out`` (not created here; it must not be a file) and the formats of
+    :func:`export_formats`; ``width``, ``height`` [in] in (0, 100], ``dpi`` [1/in] in (0, 2400].
+    """
+    kinds = export_formats(formats)
+    for value, name in ((width, "width"), (height, "height")):
+        as_scalar(value, name, "in", low=0.0, high=MAX_SIZE, low_open=True)
+    as_scalar(dpi, "dpi", "1/in", low=0.0, high=MAX_DPI, low_open=True)
+    folder = Path(out)
+    if folder.exists() and not folder.is_dir():
+        raise TiltwellError(f"out must be a folder; got the file {str(out)!r}")
+    return folder, kinds
+
+
+def write_figures(drawings: Mapping[str, Figure], out: str | os.PathLike[str], *,
+                  formats: Any = ("pdf", "svg", "png"), width: float = 6.0, height: float = 4.0,
+                  dpi: float = 300) -> list[Path]:
+    """Save each named figure as ``out/<name>.<format>`` for every one of ``formats``.
+
+    The folder ``out`` is created if missing; the options are checked first
+    (:func:`check_export`) and passed to :func:`save`. Returns the written paths, figure
+    by figure, in the order of ``drawings`` and then of ``formats``.
+    """
+    folder, kinds = check_export(out, formats=formats, width=width, height=height, dpi=dpi)
+    folder.mkdir(parents=True, exist_ok=True)
+    return [save(figure, folder / f"{name}.{kind}", width=width, height=height, dpi=dpi)
+            for name, figure in drawings.items() for kind in kinds]
