@@ -159,7 +159,7 @@ def coil_part_row(app: Any) -> tuple[dict[str, object], list[str]]:
     ours = _times([move(float(r)) for r in values[1:]])
     theirs = _times([direct(float(r)) for r in values[1:]])
     start = time.perf_counter()
-    part.scan(wait=True)
+    part.scan().result()
     scan_s = time.perf_counter() - start
     check = (f"coil part: peak current after the last move {part.state['peak_current']:.6g} A; slowest move "
              f"{max(ours) * 1e3:.1f} ms; one phase scan {scan_s:.2f} s (background); errors caught: {len(app.errors)}")

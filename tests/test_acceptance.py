@@ -20,6 +20,7 @@ from tiltwell import (
     separatrix,
     trap_acceptance,
 )
+from tiltwell.wells.acceptance import TrapSampler, acceptances_at
 
 MU_B = constants.physical_constants["Bohr magneton"][0]
 AMU = constants.physical_constants["atomic mass constant"][0]
@@ -58,6 +59,29 @@ def test_truncated_quadrupole_longitudinal_and_transverse(fraction: float) -> No
     assert result.escape_energy == pytest.approx(energy, rel=1e-9)
     assert result.longitudinal.area == pytest.approx(_v_area(energy, C, tilt, PARTICLE.mass), rel=1e-6)
     assert result.transverse.area == pytest.approx(_v_area(energy, C / 2, 0.0, PARTICLE.mass), rel=1e-6)
+
+
+def test_one_sampler_for_many_decelerations_meets_the_closed_forms() -> None:
+    """acceptances_at on one TrapSampler, the decelerations out of order and one repeated:
+    each result, in order, meets the tilted-V closed forms of the test above (escape
+    energy D (1 - f/c), axis and radial V areas) and equals trap_acceptance there."""
+    trap = _quadrupole_trap()
+    fractions = [0.9, 0.0, 0.5, 0.9, 0.2]
+    sampler = TrapSampler(trap, 2001)
+    results = acceptances_at(sampler, [f * C / PARTICLE.mass for f in fractions])
+    assert len(results) == len(fractions)
+    for fraction, result in zip(fractions, results):
+        tilt, energy = fraction * C, DEPTH * (1 - fraction)
+        assert result.deceleration == tilt / PARTICLE.mass
+        assert result.escape_energy == pytest.approx(energy, rel=1e-9)
+        assert result.longitudinal.area == pytest.approx(_v_area(energy, C, tilt, PARTICLE.mass), rel=1e-6)
+        assert result.transverse.area == pytest.approx(_v_area(energy, C / 2, 0.0, PARTICLE.mass), rel=1e-6)
+        assert math.isnan(result.volume)
+        single = trap_acceptance(trap, result.deceleration, include_6d=False)
+        assert (result.longitudinal.area, result.transverse.area) == (single.longitudinal.area,
+                                                                      single.transverse.area)
+    with pytest.raises(TiltwellError, match="decelerations"):
+        acceptances_at(sampler, [0.0, math.nan])
 
 
 def test_truncated_quadrupole_critical_deceleration() -> None:

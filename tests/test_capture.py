@@ -141,3 +141,30 @@ def test_arrival_times_against_stepping_free_flight() -> None:
     never = np.isinf(times)  # moving backwards in the lab: never arrives
     assert np.array_equal(never, np.isnan(crossed)) and never.sum() < len(times)
     assert np.all(np.abs(times[~never] - crossed[~never]) <= 1e-6)
+
+
+@pytest.mark.parametrize("fraction", [0.0, 1.05], ids=["static trap", "past the critical deceleration"])
+def test_the_result_carries_the_sample_it_counted_and_tracked(fraction: float) -> None:
+    """The sample on the result is the beam's own draw for the seed, in the trap frame (vz
+    shifted by -mismatch), read-only; in a static trap its rows are the tracked ones:
+    energy conservation keeps every row below the escape energy in the well (the check of
+    test_static_trap_keeps_every_energetically_bound_particle, on the result's own rows)."""
+    trap, beam, mismatch = _trap(), _beam(), 3.0
+    result = capture_estimates(trap, fraction * trap.critical_deceleration(), beam, 2e-3, particles=3000, seed=5,
+                               mismatch=mismatch)
+    drawn = beam.sample(3000, seed=5)
+    drawn[:, 5] -= mismatch
+    assert result.sample is not None
+    np.testing.assert_array_equal(result.sample, drawn)
+    assert not result.sample.flags.writeable
+    if fraction > 1.0:
+        assert result.tracking is None and result.sample.shape == (3000, 6)
+        return
+    assert result.tracking is not None and result.tracking.kept.shape == (3000,)
+    sample = result.sample
+    energy = 0.5 * trap.mass * np.sum(sample[:, 3:] ** 2, axis=1) + trap.potential(*sample[:, :3].T)
+    assert result.acceptance.energetic is not None
+    bound = (energy < 0.999 * result.acceptance.escape_energy) & result.acceptance.energetic.in_well(sample[:, :3])
+    assert bound.sum() > 100
+    assert np.all(result.tracking.kept[bound])
+    assert result.tracked == np.mean(result.tracking.kept)

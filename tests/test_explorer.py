@@ -82,7 +82,7 @@ def test_display_publishes_inline_bokehjs_then_the_widget(app: Explorer, monkeyp
     app._ipython_display_()
     assert shown[-1] == {"widget": app.widget}
     # the views are drawn from a serialised document: it holds the current data, changes made before display included
-    bundle = app._views["longitudinal"].render_bundle["docs_json"]
+    bundle = app.views["longitudinal"].render_bundle["docs_json"]
     assert f"{app.figures['longitudinal'].title.text}" in str(bundle)
     scripts = "".join(str(value) for data in shown[:-1] for value in data.values())
     # BokehJS itself, from the installed bokeh (re-indented inside the loader)
@@ -297,12 +297,12 @@ def test_invalid_beam_blanks_the_views_with_a_message() -> None:
 
 def test_log_scale_switches_the_slider_and_both_move_together(app: Explorer) -> None:
     app.controls["log_scale"].value = True
-    assert app.widget is not None and app._deceleration_box.children == (app.controls["deceleration_log"],)
+    assert app.widget is not None and app.deceleration_box.children == (app.controls["deceleration_log"],)
     app.controls["deceleration_log"].value = 2.0e4
     assert app.controls["deceleration"].value == 2.0e4
     assert app.state["deceleration"] == 2.0e4
     app.controls["log_scale"].value = False
-    assert app._deceleration_box.children == (app.controls["deceleration"],)
+    assert app.deceleration_box.children == (app.controls["deceleration"],)
 
 
 def test_update_rejects_unknown_controls_and_values_out_of_range(app: Explorer) -> None:
@@ -368,7 +368,7 @@ def test_save_html_is_standalone_with_inline_bokehjs(app: Explorer, tmp_path: Pa
 def test_monte_carlo_equals_capture_estimates(app: Explorer) -> None:
     app.update(particles=300)
     stale = app.readouts["tracked"].value
-    estimates = app.run_monte_carlo(wait=True)
+    estimates = app.run_monte_carlo().result(timeout=120)
     assert isinstance(estimates, tw.CaptureEstimates)
     trap, beam, a, mismatch, _ = direct(app)
     scenario = app.scenario()
@@ -383,6 +383,10 @@ def test_monte_carlo_equals_capture_estimates(app: Explorer) -> None:
     assert reference.tracking is not None
     sample = beam.sample(300, seed=scenario.simulation.seed)
     assert_marked(app, "longitudinal", sample[:, 2], sample[:, 5] - mismatch, reference.tracking.kept)
+    # the drawn particles are the check's own: its sample and its kept flags, in both planes
+    assert estimates is not None and estimates.sample is not None and estimates.tracking is not None
+    np.testing.assert_array_equal(estimates.sample[:, 5], sample[:, 5] - mismatch)
+    assert_marked(app, "transverse", estimates.sample[:, 0], estimates.sample[:, 3], estimates.tracking.kept)
     assert "(kept: tracked trajectories)" in app.figures["longitudinal"].title.text
     assert "finished" in app.actions["progress"].value
     # any move makes the heavy numbers stale
@@ -393,7 +397,7 @@ def test_monte_carlo_equals_capture_estimates(app: Explorer) -> None:
 
 def test_a_result_for_old_settings_is_discarded(app: Explorer) -> None:
     app.update(particles=200)
-    future = app.run_monte_carlo(wait=False)
+    future = app.run_monte_carlo()
     app.controls["mismatch"].value = 2.0  # moves on while the check runs (it takes ~1 s: the 6-D grid)
     future.result(timeout=60)
     app.wait()
@@ -446,14 +450,29 @@ def test_coil_scenario_has_a_current_control(tmp_path: Path) -> None:
 def test_save_figures_without_the_figures_module(app: Explorer, monkeypatch: pytest.MonkeyPatch,
                                                  tmp_path: Path) -> None:
     monkeypatch.setitem(sys.modules, "tiltwell.figures", None)  # import now raises ImportError
-    assert app.save_figures(tmp_path / "figures") is None
+    assert app.save_figures(tmp_path / "figures").result(timeout=0) is None
     assert "tiltwell.figures" in app.status.value
     assert list(tmp_path.iterdir()) == []
 
 
 def test_compute_6d_equals_trap_acceptance(app: Explorer) -> None:
-    volume = app.compute_6d(wait=True)
+    volume = app.compute_6d().result(timeout=120)
     trap, _, a, _, _ = direct(app)
     assert volume == tw.trap_acceptance(trap, a).volume
     assert app.state["acceptance_6d"] == volume
     assert app.readouts["acceptance_6d"].value == f"{volume * 1e9:.4g} (mm·m/s)³"
+
+
+@pytest.mark.slow
+def test_save_figures_writes_the_scenario_set(app: Explorer, tmp_path: Path) -> None:
+    app.update(particles=200)
+    future = app.save_figures(tmp_path / "figures")
+    paths = future.result(timeout=600)
+    assert paths is not None and all(path.is_file() and path.parent == tmp_path / "figures" for path in paths)
+    # every figure in the three formats the figures module writes by default
+    names = {path.stem for path in paths}
+    assert {"potential", "phase-longitudinal", "phase-transverse"} <= names
+    expected = [f"{name}.{ext}" for name in names for ext in ("pdf", "png", "svg")]
+    assert sorted(path.name for path in paths) == sorted(expected)
+    assert app.status.value == f"figures written to {tmp_path / 'figures'}"
+    assert app.errors == []

@@ -127,7 +127,7 @@ def test_the_part_is_a_closed_section_that_computes_only_when_open() -> None:
         assert len(part.sources["depth_reference"].data["phase"]) == 2
         # the serialised view holds the data drawn after it was made (Explorer._fresh_widget re-serialises it)
         app._repr_mimebundle_()
-        assert part.figures["currents"].title.text in str(part._views["currents"].render_bundle["docs_json"])
+        assert part.figures["currents"].title.text in str(part.views["currents"].render_bundle["docs_json"])
         assert app.errors == []
     finally:
         app.close()
@@ -202,7 +202,7 @@ def test_currents_equal_waveforms_on_a_long_row(app: Explorer, values: dict[str,
     assert part.state["peak_current"] == np.max(np.abs(currents))
     assert part.readouts["peak_current"].value.startswith(f"{part.state['peak_current']:.4g} A")
     assert part.state["limited"] == float(np.any(plan.limited))
-    assert part._spans["limit_high"].location == part.controls["max_current"].value
+    assert part.spans["limit_high"].location == part.controls["max_current"].value
     assert app.errors == []
 
 
@@ -241,7 +241,7 @@ def test_phase_scan_equals_moving_trap_phases(app: Explorer, main: dict[str, Any
         app.update(deceleration=main["fraction"] * app.state["critical_deceleration"])
     part = part_of(app)
     assert part.readouts["worst"].value == "— (press “scan the phases now”)"
-    result = part.scan(wait=True)
+    result = part.scan().result(timeout=120)
     assert result is not None and "finished" in part.status.value
     scenario = app.scenario()
     built = build(scenario)
@@ -280,7 +280,7 @@ def test_phase_scan_equals_moving_trap_phases(app: Explorer, main: dict[str, Any
 def test_a_stale_phase_scan_is_discarded(app: Explorer) -> None:
     part = part_of(app)
     before = dict(part.sources["acceptance"].data)
-    future = part.scan(wait=False)
+    future = part.scan()
     part.controls["turns"].value = part.controls["turns"].value + 20  # moves on while the scan runs (~0.5 s)
     assert future.result(timeout=120) is not None
     assert "discarded" in part.status.value
@@ -292,7 +292,7 @@ def test_a_stale_phase_scan_is_discarded(app: Explorer) -> None:
 
 def test_a_main_setting_change_also_makes_a_scan_stale(app: Explorer) -> None:
     part = part_of(app)
-    future = part.scan(wait=False)
+    future = part.scan()
     app.controls["deceleration"].value = 0.2 * app.state["critical_deceleration"]
     future.result(timeout=120)
     assert "discarded" in part.status.value
@@ -355,7 +355,7 @@ def test_a_short_device_or_no_schedule_blanks_the_currents_with_a_message(app: E
     app.update(final_velocity=20.0, deceleration=0.0)
     assert "no schedule" in part.message.value
     assert len(part.sources["currents"].data["xs"]) == 0
-    assert part.scan(wait=True) is not None  # the phase scan needs no schedule (a = 0 here)
+    assert part.scan().result(timeout=120) is not None  # the phase scan needs no schedule (a = 0 here)
     assert app.errors == []
 
 
@@ -363,7 +363,7 @@ def test_above_the_critical_deceleration_the_scan_says_there_is_no_well(app: Exp
     app.update(deceleration=1.5 * app.state["critical_deceleration"])
     part = part_of(app)
     part.update(radius=19.0, gradient=125.0)  # 1.5 x the rigid trap's critical 9.9e4 m/s^2 also tilts these wells away
-    result = part.scan(wait=True)
+    result = part.scan().result(timeout=120)
     assert result is not None and not np.any(result.bound)
     assert part.readouts["ripple"].value == "— (no well at 12 of 12 phases)"
     assert part.state["worst_longitudinal"] == 0.0

@@ -17,7 +17,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import NDArray
@@ -57,6 +57,12 @@ class CaptureEstimates:
         Longitudinal, transverse and 6-D acceptance at this deceleration.
     tracking : TrackingResult or None
         Survival against time, final phase space and per-particle kept flags.
+    sample : ndarray, shape (N, 6), or None
+        The Monte-Carlo sample both estimates counted, at the start: (x, y, z, vx, vy, vz)
+        [m, m/s] relative to the trap centre moving at the trap's initial velocity (the
+        beam's drawn particles, their vz shifted by ``-mismatch``); row i is the particle
+        whose fate ``tracking.kept[i]`` records. Read-only. :func:`capture_estimates`
+        always fills it; None only for results built without one.
     """
 
     overlap: float
@@ -67,6 +73,7 @@ class CaptureEstimates:
     particles: int
     acceptance: TrapAcceptance
     tracking: TrackingResult | None
+    sample: NDArray[np.float64] | None = field(default=None, repr=False)
 
     def arrival_times(self, release_velocity: float, distance: float) -> NDArray[np.float64]:
         """Arrival times [s] of the kept particles at a detector ``distance`` [m] beyond
@@ -142,15 +149,16 @@ def capture_estimates(
     particles = as_integer(particles, "particles", 1)
     acceptance = trap_acceptance(trap, a, samples=samples, rtol=rtol)
     overlap = plane_product_fraction(acceptance.longitudinal, acceptance.transverse, beam, mismatch)
-    if acceptance.energetic is None:
-        empty = CaptureEstimates(overlap, 0.0, 0.0, 0.0 if track_particles else math.nan, 0.0, int(particles),
-                                 acceptance, None)
-        return empty
     sample = beam.sample(int(particles), seed=seed)
     sample[:, 5] -= mismatch
+    sample.flags.writeable = False  # the result's record of what was counted and tracked
+    if acceptance.energetic is None:
+        return CaptureEstimates(overlap, 0.0, 0.0, 0.0 if track_particles else math.nan, 0.0, int(particles),
+                                acceptance, None, sample)
     energetic, energetic_error = energetic_fraction(trap, acceptance.energetic, a, sample)
     if not track_particles:
-        return CaptureEstimates(overlap, energetic, energetic_error, math.nan, math.nan, int(particles), acceptance, None)
+        return CaptureEstimates(overlap, energetic, energetic_error, math.nan, math.nan, int(particles), acceptance,
+                                None, sample)
     step = default_time_step(acceptance, trap.mass) if time_step is None else time_step
     step = min(step, duration)
     # Coil fields are costly to differentiate at every step: interpolate a precomputed map.
@@ -159,5 +167,6 @@ def capture_estimates(
     result = track(trap, sample, duration, step, deceleration=a, method=method, field_map=field_map,
                    ramp=ramp, progress=progress)
     return CaptureEstimates(
-        overlap, energetic, energetic_error, result.fraction, result.binomial_error, int(particles), acceptance, result
+        overlap, energetic, energetic_error, result.fraction, result.binomial_error, int(particles), acceptance, result,
+        sample,
     )

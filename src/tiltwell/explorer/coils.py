@@ -13,16 +13,15 @@ control: the message line says what is wrong.
 
 from __future__ import annotations
 
-import contextlib
 import html
 import math
 import threading
-from collections.abc import Callable, Iterator
+from collections.abc import Callable
+from concurrent.futures import Future
 from typing import Any
 
 import ipywidgets as widgets
 import numpy as np
-from jupyter_bokeh import BokehModel
 
 from . import coilviews as views
 from .coilmodel import (
@@ -35,59 +34,21 @@ from .coilmodel import (
     problems,
     scan,
 )
+from .coilwidgets import READOUTS, TITLE, make_actions, make_controls, make_layout, make_readouts, settings_of
 from .model import Picture
+from .plumbing import Callbacks, bokeh_views, reserialise, start
 from .readouts import warning
 from .tasks import Tasks
-from .widgets import grid
+from .widgets import check_values
 from .._base.validation import TiltwellError
-from ..physics.hardware import ELECTRICAL_CAUTION
 from ..coils.moving import PhaseScan
 
 __all__ = ["READOUTS", "SCAN_DELAY", "TITLE", "CoilPart"]
 
 #: Seconds of quiet after a change before the phase scan is recomputed.
 SCAN_DELAY = 0.5
-#: The section's title in the explorer.
-TITLE = "coil array: currents, and the trap between two coils"
-#: Readout keys and labels, in display order.
-READOUTS: tuple[tuple[str, str], ...] = (
-    ("peak_current", "peak current per turn"),
-    ("limit", "current limit reached"),
-    ("ripple", "depth ripple (peak-to-peak / mean)"),
-    ("worst", "worst phase: longitudinal / transverse"),
-    ("mean", "mean over the phases: long. / trans."),
-    ("zero_offset", "largest field-zero offset"),
-)
 _SCANNED = ("ripple", "worst", "mean", "zero_offset")
-_STYLE = {"description_width": "190px"}
-_WIDE = widgets.Layout(width="440px")
 _TITLES = {"depth": "well depth between two coils", "acceptance": "acceptances between two coils"}
-
-
-def _slider(value: float, low: float, high: float, step: float, description: str, tooltip: str) -> widgets.FloatSlider:
-    low, high, step = grid(value, low, high, step)
-    return widgets.FloatSlider(value=value, min=low, max=high, step=step, description=description, tooltip=tooltip,
-                               readout_format=".4g", style=_STYLE, layout=_WIDE)
-
-
-def make_controls(s: CoilSettings) -> dict[str, widgets.Widget]:
-    """Sliders set to ``s``; ``pitch`` and ``radius`` in mm, the rest SI."""
-    pitch, radius = s.pitch * 1e3, s.radius * 1e3
-    return {
-        "pitch": _slider(pitch, 0.25 * pitch, 3.0 * pitch, pitch / 200.0, "coil pitch [mm]",
-                         "distance between neighbouring coils"),
-        "radius": _slider(radius, 0.2 * radius, 3.0 * radius, radius / 200.0, "coil radius [mm]",
-                          "mean radius of the (thin) windings: the bore"),
-        "turns": widgets.IntSlider(value=s.turns, min=1, max=max(10, 4 * s.turns), description="turns per coil",
-                                   style=_STYLE, layout=_WIDE),
-        "active": widgets.IntSlider(value=s.active, min=2, max=12, step=2, description="coils carrying current",
-                                    tooltip="how many coils nearest the trap carry current at once",
-                                    style=_STYLE, layout=_WIDE),
-        "max_current": _slider(s.max_current, 0.05 * s.max_current, 4.0 * s.max_current, s.max_current / 200.0,
-                               "current limit per turn [A]", "largest current per turn the drivers give"),
-        "gradient": _slider(s.gradient, 0.1 * s.gradient, 4.0 * s.gradient, s.gradient / 200.0,
-                            "wanted gradient [T/m]", "axial gradient dB_z/dz asked of the coils at the field zero"),
-    }
 
 
 class CoilPart:
@@ -114,6 +75,10 @@ class CoilPart:
     sources, figures : dict
         The drawn data (see :mod:`tiltwell.explorer.coilviews`) and the Bokeh figures
         ``currents``, ``depth``, ``acceptance``.
+    views : dict of str to jupyter_bokeh.BokehModel
+        The figures as widgets, keyed alike (what the page shows).
+    spans : dict of str to bokeh Span
+        ``limit_high``, ``limit_low``: the current limit per turn drawn on the currents [A].
     message, status : ipywidgets.HTML
         What is wrong with the settings; the outcome of the last phase scan.
     auto_scan : bool
@@ -125,8 +90,6 @@ class CoilPart:
         self.defaults = defaults
         self.auto_scan = auto_scan
         self._lock = lock
-        self._unexpected = unexpected
-        self._quiet = 0
         self._inputs: Inputs = NO_INPUTS
         self._drawn: tuple[Any, ...] | None = None
         self._scanned: tuple[Any, ...] | None = None
@@ -134,43 +97,22 @@ class CoilPart:
         self.message = widgets.HTML("")
         self.status = widgets.HTML("")
         self._tasks = Tasks(lock, self._report, unexpected)
+        self._callbacks = Callbacks(lambda text: setattr(self.message, "value", warning(text)), unexpected)
         self.controls = make_controls(defaults)
-        self.actions = {
-            "scan": widgets.Button(description="scan the phases now", tooltip="depth and acceptances at each phase"),
-            "reset": widgets.Button(description="reset the coils", tooltip="back to the starting coil settings"),
-        }
-        self.readouts = {key: widgets.HTML("—") for key, _ in READOUTS}
-        self.figures, self.sources, self._spans = views.make_views()
-        self._views = {name: BokehModel(figure) for name, figure in self.figures.items()}
-        self.widget = self._layout()
+        self.actions = make_actions()
+        self.readouts = make_readouts()
+        self.figures, self.sources, self.spans = views.make_views()
+        self.views = bokeh_views(self.figures)
+        self.widget = make_layout(self.controls, self.actions, self.readouts, self.views, self.message, self.status)
         self.section = widgets.Accordion(children=[self.widget], titles=(TITLE,))
         self.section.add_class("tiltwell-coils-section")
-        self.section.observe(lambda change: self._guard(self.refresh) if change["new"] == 0 else None,
-                             names="selected_index")
+        on = self._callbacks
+        on.observe(self.section, lambda change: self.refresh() if change["new"] == 0 else None,
+                   names="selected_index", even_when_quiet=True)
         for control in self.controls.values():
-            control.observe(self._on_control, names="value")
-        self.actions["scan"].on_click(lambda _: self._guard(lambda: self.scan(wait=False)))
-        self.actions["reset"].on_click(lambda _: self._guard(self.reset))
-
-    def _layout(self) -> widgets.VBox:
-        title = widgets.HTML("<b>coil array</b> — the trap made by a row of thin coils; species, deceleration and "
-                             "trap box are those set above")
-        left = widgets.VBox([*self.controls.values(), widgets.HBox(list(self.actions.values()))],
-                            layout=widgets.Layout(width="450px"))
-        cells: list[widgets.Widget] = []
-        for key, label in READOUTS:
-            cells += [widgets.HTML(html.escape(label)), self.readouts[key]]
-        table = widgets.GridBox(cells, layout=widgets.Layout(grid_template_columns="250px 300px", width="560px"))
-        table.add_class("tiltwell-coils-readouts")
-        caution = widgets.HTML(f"<small>{html.escape(ELECTRICAL_CAUTION)}</small>", layout=widgets.Layout(width="440px"))
-        for name, view in self._views.items():
-            view.add_class(f"tiltwell-coils-view-{name}")
-        plots = widgets.GridBox([widgets.VBox([self._views["currents"], caution]), self._views["depth"],
-                                 self._views["acceptance"]],
-                                layout=widgets.Layout(grid_template_columns="repeat(2, 460px)"))
-        root = widgets.VBox([title, widgets.HBox([left, table]), self.message, self.status, plots])
-        root.add_class("tiltwell-coils")
-        return root
+            on.observe(control, lambda _: self.refresh())
+        on.on_click(self.actions["scan"], self.scan)
+        on.on_click(self.actions["reset"], self.reset)
 
     # --- settings -----------------------------------------------------------------------------
 
@@ -185,26 +127,16 @@ class CoilPart:
 
     def settings(self) -> CoilSettings:
         """The control values, SI."""
-        c = self.controls
-        return CoilSettings(pitch=float(c["pitch"].value) * 1e-3, radius=float(c["radius"].value) * 1e-3,
-                            turns=int(c["turns"].value), active=int(c["active"].value),
-                            max_current=float(c["max_current"].value), gradient=float(c["gradient"].value))
+        return settings_of(self.controls)
 
     def update(self, **values: Any) -> None:
         """Set several controls at once, by their :attr:`controls` names, and redraw once.
         An unknown name or a value outside a control's range raises TiltwellError."""
-        for name, value in values.items():
-            if name not in self.controls:
-                raise TiltwellError(f"unknown control {name!r}; known: {', '.join(self.controls)}")
-            control = self.controls[name]
-            if isinstance(value, bool) or not isinstance(value, (int, float)) or not (
-                    control.min <= value <= control.max):
-                raise TiltwellError(f"{name} must be a number in [{control.min:g}, {control.max:g}] (the control's "
-                                    f"range); got {value!r}")
-        with self._quieted():
+        check_values(self.controls, values)
+        with self._callbacks.quieted():
             for name, value in values.items():
                 self.controls[name].value = value
-        self._guard(self.refresh)
+        self._callbacks.guard(self.refresh)
 
     def reset(self) -> None:
         """Set every control back to :attr:`defaults`."""
@@ -224,27 +156,7 @@ class CoilPart:
         with self._lock:
             self._inputs = inputs
         if self.is_open:
-            self._guard(self.refresh)
-
-    @contextlib.contextmanager
-    def _quieted(self) -> Iterator[None]:
-        self._quiet += 1
-        try:
-            yield
-        finally:
-            self._quiet -= 1
-
-    def _on_control(self, change: dict[str, Any]) -> None:
-        if not self._quiet:
-            self._guard(self.refresh)
-
-    def _guard(self, action: Callable[[], object]) -> None:
-        try:
-            action()
-        except TiltwellError as error:
-            self.message.value = warning(html.escape(str(error)))
-        except Exception as error:  # noqa: BLE001 - a widget callback must never raise
-            self._unexpected(error)
+            self._callbacks.guard(self.refresh)
 
     def _report(self, text: str) -> None:
         self.status.value = text
@@ -283,8 +195,8 @@ class CoilPart:
                 more.append(str(error))
             else:
                 self.sources["currents"].data = views.current_columns(plan, times, array.positions)
-                self._spans["limit_high"].location, self._spans["limit_low"].location = (settings.max_current,
-                                                                                          -settings.max_current)
+                self.spans["limit_high"].location, self.spans["limit_low"].location = (settings.max_current,
+                                                                                        -settings.max_current)
                 peak = float(np.max(np.abs(plan.currents)))
                 limited = bool(np.any(plan.limited))
                 lowest = float(np.min(plan.gradient))
@@ -328,7 +240,7 @@ class CoilPart:
             note, suffix = "—", ""
         elif self.auto_scan:
             note, suffix = "— (scanning…)", " (out of date: updating…)"
-            self._tasks.later(SCAN_DELAY, lambda: self._guard(lambda: self.scan(wait=False)))
+            self._tasks.later(SCAN_DELAY, lambda: self._callbacks.guard(self.scan))
         else:
             note, suffix = "— (press “scan the phases now”)", " (out of date: press “scan the phases now”)"
         for key in _SCANNED:
@@ -336,11 +248,14 @@ class CoilPart:
         for name, title in _TITLES.items():
             self.figures[name].title.text = title + (suffix if len(self.sources[name].data["phase"]) else "")
 
-    def scan(self, wait: bool = True) -> Any:
-        """The phase scan at the current settings, in the background; shown when done
-        unless the settings changed meanwhile. Returns the :class:`tiltwell.coils.moving.PhaseScan`
-        (``wait``; None if it failed or was discarded, the reason in :attr:`status`) or a
-        ``concurrent.futures.Future``. Raises TiltwellError when the settings make no scan."""
+    def scan(self) -> Future[PhaseScan | None]:
+        """Start the phase scan at the current settings, in the background; it is shown
+        when done unless the settings changed meanwhile.
+
+        Returns its ``concurrent.futures.Future``: ``.result()`` waits and gives the
+        :class:`tiltwell.coils.moving.PhaseScan` (also when discarded, not shown), or None
+        when it failed; the outcome is in :attr:`status`. Raises TiltwellError when the
+        settings make no scan."""
         with self._lock:
             settings, inputs = self.settings(), self._inputs
             found, _ = problems(settings, inputs)
@@ -348,19 +263,9 @@ class CoilPart:
                 raise TiltwellError(found[0])
             key = (settings, inputs.scan_key)
 
-        def busy(on: bool) -> None:
-            self.actions["scan"].disabled = on
-
-        stop = self._tasks.ticking(f"phase scan ({PHASES} phases)", self._report, busy)
-
-        def compute() -> PhaseScan:
-            try:
-                return scan(settings, inputs)
-            finally:
-                stop()
-
-        return self._tasks.run("phase scan", compute, lambda result: self._show_scan(key, settings, result),
-                               lambda: self._scan_key() == key, wait=wait)
+        return start(self._tasks, "phase scan", lambda: scan(settings, inputs),
+                     lambda result: self._show_scan(key, settings, result), lambda: self._scan_key() == key,
+                     text=f"phase scan ({PHASES} phases)", show=self._report, button=self.actions["scan"])
 
     def _show_scan(self, key: tuple[Any, ...], settings: CoilSettings, result: PhaseScan) -> None:
         pitch, worst = settings.pitch, result.worst
@@ -391,9 +296,8 @@ class CoilPart:
     # --- display and shutdown -----------------------------------------------------------------
 
     def fresh(self) -> None:
-        """Re-serialise the Bokeh views (see :meth:`tiltwell.explorer.Explorer._fresh_widget`)."""
-        for view, figure in zip(self._views.values(), self.figures.values()):
-            view.update_from_model(figure)
+        """Re-serialise the Bokeh views (:func:`tiltwell.explorer.plumbing.reserialise`)."""
+        reserialise(self.views, self.figures)
 
     def wait(self, timeout: float | None = None) -> None:
         """Start a pending rescan at once and wait for all background work."""

@@ -17,6 +17,7 @@ from bokeh.models.annotations import Span, Title
 from bokeh.plotting import figure
 from numpy.typing import NDArray
 
+from . import style
 from ..coils.array import CurrentPlan
 from ..physics.constants import millikelvin
 from ..coils.moving import PhaseScan
@@ -44,11 +45,7 @@ PHASE_FIGURES = ("depth", "acceptance")
 #: A caution on the current figure itself (a saved image keeps it).
 FIGURE_CAUTION = "planning numbers, not a design: see the electrical caution (tiltwell.physics.hardware.ELECTRICAL_CAUTION)"
 
-_PALETTE = ("#1d3557", "#c8553d", "#2a7f62", "#e09f3e", "#6a4c93", "#3d8bd4", "#9c6644", "#d17a9c", "#5c7a29",
-            "#4a4e69")
-_ALONG, _ACROSS, _LIMIT, _REFERENCE = "#1d3557", "#2a7f62", "#a4161a", "#8d99ae"
-_TOOLS = "pan,wheel_zoom,box_zoom,reset,save"
-_WIDTH, _HEIGHT = 440, 330
+_ALONG, _ACROSS, _LIMIT, _REFERENCE = style.WELL, style.KEPT, style.WARNING, style.REFERENCE
 US, MM, UM, AREA = 1e6, 1e3, 1e6, 1e3  # s -> µs, m -> mm, m -> µm, m·m/s -> mm·m/s
 
 
@@ -66,7 +63,7 @@ def current_columns(plan: CurrentPlan, times: FloatArray, positions: FloatArray)
         "ys": [plan.currents[:, k] for k in used],
         "coil": [int(k) for k in used],
         "position": [float(positions[k]) * MM for k in used],
-        "colour": [_PALETTE[i % len(_PALETTE)] for i in range(used.size)],
+        "colour": [style.PALETTE[i % len(style.PALETTE)] for i in range(used.size)],
     }
 
 
@@ -117,7 +114,7 @@ def make_views() -> tuple[dict[str, Any], dict[str, ColumnDataSource], dict[str,
 
 
 def _currents_figure(sources: dict[str, ColumnDataSource], spans: dict[str, Span]) -> Any:
-    p = figure(width=_WIDTH, height=_HEIGHT, tools=_TOOLS, title="coil currents as the trap passes",
+    p = figure(**style.FIGURE, title="coil currents as the trap passes",
                x_axis_label="time since switch-on [µs]", y_axis_label="current per turn [A]")
     lines = p.multi_line("xs", "ys", source=sources["currents"], line_color="colour", line_width=2)
     for span in spans.values():
@@ -129,7 +126,7 @@ def _currents_figure(sources: dict[str, ColumnDataSource], spans: dict[str, Span
 
 
 def _depth_figure(sources: dict[str, ColumnDataSource]) -> Any:
-    p = figure(width=_WIDTH, height=_HEIGHT, tools=_TOOLS, title="well depth between two coils",
+    p = figure(**style.FIGURE, title="well depth between two coils",
                x_axis_label="trap phase [pitch]", y_axis_label="depth / k_B [mK]")
     line = p.line("phase", "depth", source=sources["depth"], line_color=_ALONG, line_width=2,
                   legend_label="coil array")
@@ -146,7 +143,7 @@ def _depth_figure(sources: dict[str, ColumnDataSource]) -> Any:
 
 
 def _acceptance_figure(sources: dict[str, ColumnDataSource]) -> Any:
-    p = figure(width=_WIDTH, height=_HEIGHT, tools=_TOOLS, title="acceptances between two coils",
+    p = figure(**style.FIGURE, title="acceptances between two coils",
                x_axis_label="trap phase [pitch]", y_axis_label="acceptance [mm·m/s]")
     drawn: list[Any] = []
     for plane, colour in (("longitudinal", _ALONG), ("transverse", _ACROSS)):

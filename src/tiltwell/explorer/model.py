@@ -5,7 +5,8 @@ for the trap and the beam, :func:`full_scenario` for everything, the file the ex
 saves), which :func:`tiltwell.workflows.report.build` turns into the trap, the beam and the
 schedule. :class:`Model` keeps what does not change while only the deceleration moves
 (the trap's samples, the beam, its drawn particles) and returns one :class:`Picture` per
-setting, plus the trade-off curve on request.
+setting, plus the inputs of the trade-off curve (:mod:`tiltwell.explorer.tradeoff`, whose
+:func:`tradeoff` and :class:`TradeoffInputs` are also importable from here).
 
 Two controls have no key of their own in a scenario and are carried by the keys that set
 them in the source model (:class:`tiltwell.Source`): the initial (mean beam) velocity by
@@ -17,7 +18,7 @@ alike, because the transverse velocity spread is ``v (D / 4) / L`` of the narrow
 from __future__ import annotations
 
 import dataclasses
-import math
+import os
 from collections import OrderedDict
 from dataclasses import dataclass
 from typing import Any
@@ -25,13 +26,14 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from .tradeoff import TradeoffInputs, tradeoff
 from .._base.validation import TiltwellError
-from ..wells.acceptance import TrapAcceptance, _acceptances, _Sampler
+from ..wells.acceptance import TrapAcceptance, TrapSampler, acceptances_at
 from ..physics.beam import Beam
 from ..wells.overlap import plane_product_fraction
 from ..workflows.report import build, timing
-from ..workflows.scenario import Scenario
-from ..coils.schedule import Schedule, constant_deceleration
+from ..workflows.scenario import Scenario, load
+from ..coils.schedule import Schedule
 from ..wells.traps import Trap
 
 __all__ = [
@@ -40,6 +42,7 @@ __all__ = [
     "Reference",
     "Settings",
     "TradeoffInputs",
+    "as_scenario",
     "full_scenario",
     "physics_scenario",
     "reference",
@@ -50,9 +53,6 @@ FloatArray = NDArray[np.float64]
 
 #: Particles drawn once per beam for the quick phase-plane view.
 VIEW_PARTICLES = 2000
-#: Points of the trade-off curve, from TRADEOFF_SPAN[0] to TRADEOFF_SPAN[1] x critical.
-TRADEOFF_POINTS = 28
-TRADEOFF_SPAN = (0.04, 1.1)
 #: A trap's samples are reused for this many decelerations, then sampled afresh (the
 #: sampler keeps every well it has seen).
 _SAMPLER_USES = 400
@@ -188,7 +188,7 @@ def full_scenario(physics: Scenario, settings: Settings) -> Scenario:
 @dataclass
 class _TrapEntry:
     trap: Trap
-    sampler: _Sampler
+    sampler: TrapSampler
     critical: float
     rest: tuple[FloatArray, FloatArray]
     uses: int = 0
@@ -228,39 +228,6 @@ class Picture:
     problems: tuple[str, ...]
 
 
-@dataclass(frozen=True, eq=False)
-class TradeoffInputs:
-    """What the trade-off curve needs, taken in the control thread so that the curve can
-    be computed in another one."""
-
-    trap: Trap
-    beam: Beam
-    critical: float
-    samples: int
-    rtol: float
-    mismatch: float
-    start_velocity: float | None
-    final_velocity: float
-
-
-def tradeoff(inputs: TradeoffInputs) -> dict[str, FloatArray]:
-    """Captured fraction (plane overlap, :func:`tiltwell.plane_product_fraction`) and
-    device length [m] (:func:`tiltwell.constant_deceleration`) against deceleration
-    [m/s^2] over TRADEOFF_SPAN x critical, on fresh samples of the trap (the acceptances
-    of :func:`tiltwell.acceptance_curve`, kept with their separatrices)."""
-    if not inputs.critical > 0.0:
-        return {"deceleration": np.empty(0), "overlap": np.empty(0), "length": np.empty(0)}
-    grid = inputs.critical * np.linspace(*TRADEOFF_SPAN, TRADEOFF_POINTS)
-    results = _acceptances(_Sampler(inputs.trap, inputs.samples), grid, False, inputs.rtol)
-    overlap = np.array([plane_product_fraction(r.longitudinal, r.transverse, inputs.beam, inputs.mismatch)
-                        for r in results])
-    length = np.full(grid.size, math.nan)
-    if inputs.start_velocity is not None:
-        start = inputs.start_velocity
-        length = np.array([constant_deceleration(start, inputs.final_velocity, deceleration=a).length for a in grid])
-    return {"deceleration": grid, "overlap": overlap, "length": length}
-
-
 class Model:
     """The library's answers for the explorer's settings, with caches keyed by the
     settings each answer depends on. Use it from one thread; :func:`tradeoff` and the
@@ -293,7 +260,7 @@ class Model:
         key = settings.trap_key
         if key not in self._traps:
             trap = self._beam(settings).trap
-            self._traps[key] = _TrapEntry(trap, _Sampler(trap, self.samples), trap.critical_deceleration(self.samples),
+            self._traps[key] = _TrapEntry(trap, TrapSampler(trap, self.samples), trap.critical_deceleration(self.samples),
                                           trap.axis_cut(0.0, self.samples))
             _trim(self._traps)
         self._traps.move_to_end(key)
@@ -316,10 +283,10 @@ class Model:
         beam = self._beam(settings)
         entry = self._trap(settings)
         if entry.uses >= _SAMPLER_USES:
-            entry.sampler, entry.uses = _Sampler(entry.trap, self.samples), 0
+            entry.sampler, entry.uses = TrapSampler(entry.trap, self.samples), 0
         entry.uses += 1
         a = settings.deceleration
-        acceptance = _acceptances(entry.sampler, np.array([a], dtype=np.float64), False, self.rtol)[0]
+        acceptance = acceptances_at(entry.sampler, np.array([a], dtype=np.float64), rtol=self.rtol)[0]
         overlap = plane_product_fraction(acceptance.longitudinal, acceptance.transverse, beam.beam, settings.mismatch)
         problems: list[str] = []
         scenario: Scenario | None = None
@@ -365,3 +332,15 @@ class Model:
 def _trim(cache: OrderedDict[tuple[Any, ...], Any]) -> None:
     while len(cache) > _CACHE:
         cache.popitem(last=False)
+
+
+def as_scenario(scenario: Scenario | str | os.PathLike[str] | None, default: str | os.PathLike[str]) -> Scenario:
+    """``scenario`` itself, or the scenario of the TOML file at that path, or (None) the
+    one in the file ``default``; anything else raises TiltwellError."""
+    if scenario is None:
+        return load(default)
+    if isinstance(scenario, Scenario):
+        return scenario
+    if isinstance(scenario, (str, os.PathLike)):
+        return load(scenario)
+    raise TiltwellError(f"scenario must be a Scenario, a path to a TOML file, or None; got {type(scenario).__name__}")

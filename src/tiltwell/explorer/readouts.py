@@ -4,13 +4,16 @@ is wrong with a setting."""
 
 from __future__ import annotations
 
+import html
 import math
 
+from . import style
 from .model import Picture
 from .views import barrier_picks, sci
+from .widgets import READOUTS
 from ..physics.constants import millikelvin
 
-__all__ = ["HEAVY", "problems", "state_of", "texts", "warning"]
+__all__ = ["HEAVY", "page_header", "problems", "state_of", "texts", "warning"]
 
 #: State keys of the heavy checks, cleared (NaN) whenever a setting changes.
 HEAVY = ("acceptance_6d", "captured_fraction_energy", "captured_fraction_energy_error", "captured_fraction_mc",
@@ -19,7 +22,7 @@ HEAVY = ("acceptance_6d", "captured_fraction_energy", "captured_fraction_energy_
 
 def warning(text: str) -> str:
     """``text`` (HTML) shown as a warning; empty stays empty."""
-    return f"<span style='color:#a4161a'>{text}</span>" if text else ""
+    return f"<span style='color:{style.WARNING}'>{text}</span>" if text else ""
 
 
 def problems(picture: Picture) -> list[str]:
@@ -91,3 +94,11 @@ def texts(state: dict[str, float]) -> dict[str, str]:
         "duration": value("duration", 1e3, "ms"),
         "coils": value("coils", 1.0, "", ".0f"),
     }
+
+
+def page_header(species: str, shown: dict[str, str]) -> str:
+    """The head of a saved page (HTML): the species, the critical deceleration and the
+    table of readouts, ``shown`` being the readout texts as displayed (HTML), keyed as in
+    :data:`tiltwell.explorer.widgets.READOUTS` plus ``critical``."""
+    rows = "".join(f"<tr><td>{html.escape(label)}</td><td>{shown[key]}</td></tr>" for key, label in READOUTS)
+    return f"<b>tiltwell explorer</b>: {html.escape(species)}, {shown['critical']}<table>{rows}</table>"

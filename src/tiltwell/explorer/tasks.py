@@ -48,10 +48,16 @@ class Tasks:
         self._due: Callable[[], None] | None = None
         self._due_lock = threading.Lock()
 
-    def run(self, name: str, compute: Callable[[], _T], apply: Callable[[_T], None], current: Callable[[], bool],
-            *, wait: bool) -> Any:
+    def run(self, name: str, compute: Callable[[], _T], apply: Callable[[_T], None],
+            current: Callable[[], bool]) -> Future[_T | None]:
         """``compute()`` in a worker, then ``apply(result)`` under the lock if ``current()``
-        still holds. Returns the result (``wait``; None if it failed) or the future."""
+        still holds (else the result is discarded, saying so through ``report``).
+
+        Returns the task's future, at once: its result is what ``compute`` returned (also
+        when it was discarded, not shown), or None when it raised (the error reported,
+        never raised). ``future.result()`` waits for it; the shown state is updated by
+        the time it returns.
+        """
         def task() -> _T | None:
             try:
                 result = compute()
@@ -74,7 +80,14 @@ class Tasks:
         future = self._executor.submit(task)
         self._futures.add(future)
         future.add_done_callback(self._futures.discard)
-        return future.result() if wait else future
+        return future
+
+    @staticmethod
+    def finished(value: _T) -> Future[_T]:
+        """A future that already holds ``value`` (an action that had nothing to start)."""
+        future: Future[_T] = Future()
+        future.set_result(value)
+        return future
 
     def later(self, delay: float, due: Callable[[], None]) -> None:
         """Call ``due()`` from a timer thread after ``delay`` [s], unless called again first."""

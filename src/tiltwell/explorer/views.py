@@ -26,6 +26,7 @@ from bokeh.plotting import figure
 from bokeh.resources import INLINE
 from numpy.typing import ArrayLike, NDArray
 
+from . import style
 from .model import Picture
 from ..physics.constants import millikelvin
 
@@ -54,12 +55,9 @@ SIGMAS: tuple[float, ...] = (1.0, 2.0)
 ELLIPSE_POINTS = 121
 MM = 1e3  # metres -> millimetres
 
-KEPT_COLOUR = "#2a7f62"
-LOST_COLOUR = "#c8553d"
-_WELL_COLOUR = "#1d3557"
-_REST_COLOUR = "#8d99ae"
-_BEAM_COLOUR = "#e09f3e"
-_ESCAPE_COLOUR = "#6a4c93"
+#: Colours of the kept and the lost particles (:mod:`.style`).
+KEPT_COLOUR = style.KEPT
+LOST_COLOUR = style.LOST
 
 #: Column names of every source, so an empty source has the same columns as a full one.
 COLUMNS: dict[str, tuple[str, ...]] = {
@@ -78,8 +76,6 @@ COLUMNS: dict[str, tuple[str, ...]] = {
     "tradeoff_current": ("deceleration", "overlap", "length"),
 }
 
-_TOOLS = "pan,wheel_zoom,box_zoom,reset,save"
-_WIDTH, _HEIGHT = 440, 330
 
 
 def empty_columns(name: str) -> dict[str, Any]:
@@ -189,16 +185,16 @@ def make_views() -> tuple[dict[str, Any], dict[str, ColumnDataSource], dict[str,
 
 
 def _potential_figure(sources: dict[str, ColumnDataSource]) -> Any:
-    p = figure(width=_WIDTH, height=_HEIGHT, tools=_TOOLS, title="potential on the beam axis",
+    p = figure(**style.FIGURE, title="potential on the beam axis",
                x_axis_label="z [mm]", y_axis_label="U / k_B [mK]")
-    rest = p.line("z", "lab", source=sources["potential"], line_color=_REST_COLOUR, line_dash="dashed",
+    rest = p.line("z", "lab", source=sources["potential"], line_color=style.REFERENCE, line_dash="dashed",
                   line_width=2, legend_label="trap at rest (a = 0)")
-    moving = p.line("z", "moving", source=sources["potential"], line_color=_WELL_COLOUR, line_width=2,
+    moving = p.line("z", "moving", source=sources["potential"], line_color=style.WELL, line_width=2,
                     legend_label="decelerating frame")
-    escape = p.line("z", "energy", source=sources["escape"], line_color=_ESCAPE_COLOUR, line_dash="dotdash",
+    escape = p.line("z", "energy", source=sources["escape"], line_color=style.ESCAPE, line_dash="dotdash",
                     legend_label="escape energy (3-D)")
     barriers = p.scatter("z", "energy", source=sources["barriers"], marker="triangle", size=11,
-                         fill_color=_ESCAPE_COLOUR, line_color=_ESCAPE_COLOUR, legend_label="barriers")
+                         fill_color=style.ESCAPE, line_color=style.ESCAPE, legend_label="barriers")
     p.add_tools(
         HoverTool(renderers=[rest], mode="vline", tooltips=[("z", "@z{0.000} mm"), ("at rest", "@lab{0.000} mK")]),
         HoverTool(renderers=[moving], mode="vline",
@@ -213,15 +209,15 @@ def _potential_figure(sources: dict[str, ColumnDataSource]) -> Any:
 
 
 def _phase_figure(sources: dict[str, ColumnDataSource], plane: str, x_label: str, y_label: str) -> Any:
-    p = figure(width=_WIDTH, height=_HEIGHT, tools=_TOOLS, title=f"{plane} phase plane",
+    p = figure(**style.FIGURE, title=f"{plane} phase plane",
                x_axis_label=x_label, y_axis_label=y_label)
     kept = p.scatter("q", "v", source=sources[f"{plane}_kept"], color=KEPT_COLOUR, size=3, alpha=0.5,
                      legend_label="kept")
     lost = p.scatter("q", "v", source=sources[f"{plane}_lost"], color=LOST_COLOUR, size=3, alpha=0.5,
                      legend_label="lost")
-    rings = p.multi_line("xs", "ys", source=sources[f"{plane}_ellipses"], line_color=_BEAM_COLOUR, line_width=2,
+    rings = p.multi_line("xs", "ys", source=sources[f"{plane}_ellipses"], line_color=style.BEAM, line_width=2,
                          legend_label="beam 1σ, 2σ")
-    edge = p.line("q", "v", source=sources[f"{plane}_separatrix"], line_color=_WELL_COLOUR, line_width=2.5,
+    edge = p.line("q", "v", source=sources[f"{plane}_separatrix"], line_color=style.WELL, line_width=2.5,
                   legend_label="separatrix")
     coordinate = x_label.split(" ")[0]
     velocity = y_label.split(" ")[0]
@@ -238,16 +234,16 @@ def _phase_figure(sources: dict[str, ColumnDataSource], plane: str, x_label: str
 
 
 def _tradeoff_figure(sources: dict[str, ColumnDataSource], critical: Span) -> Any:
-    p = figure(width=_WIDTH, height=_HEIGHT, tools=_TOOLS, title="trade-off against deceleration",
+    p = figure(**style.FIGURE, title="trade-off against deceleration",
                x_axis_label="deceleration [m/s²]", y_axis_label="captured fraction (phase-space overlap)")
     kept = p.line("deceleration", "overlap", source=sources["tradeoff"], line_color=KEPT_COLOUR, line_width=2,
                   legend_label="captured fraction")
     here = p.scatter("deceleration", "overlap", source=sources["tradeoff_current"], size=10, marker="circle",
                      fill_color=KEPT_COLOUR, line_color="black", legend_label="this setting")
-    length = p.line("deceleration", "length", source=sources["tradeoff"], line_color=_WELL_COLOUR, line_dash="dashed",
+    length = p.line("deceleration", "length", source=sources["tradeoff"], line_color=style.WELL, line_dash="dashed",
                     line_width=2, y_range_name="length", legend_label="device length")
     here_length = p.scatter("deceleration", "length", source=sources["tradeoff_current"], size=10, marker="square",
-                            fill_color=_WELL_COLOUR, line_color="black", y_range_name="length")
+                            fill_color=style.WELL, line_color="black", y_range_name="length")
     # each axis ranges over its own curves only, from zero
     p.y_range = DataRange1d(renderers=[kept, here], start=0.0)
     p.extra_y_ranges = {"length": DataRange1d(renderers=[length, here_length], start=0.0)}

@@ -13,6 +13,7 @@ from typing import Any
 
 import ipywidgets as widgets
 
+from . import style
 from .model import Settings
 from .._base.validation import TiltwellError
 from ..physics.hardware import ELECTRICAL_CAUTION
@@ -20,7 +21,11 @@ from ..physics.species import catalogue
 
 __all__ = [
     "READOUTS",
+    "CONTROL_LAYOUT",
+    "LABEL_STYLE",
+    "TRAP_CONTROLS",
     "check_values",
+    "control_values",
     "deceleration_range",
     "fit_deceleration",
     "grid",
@@ -28,11 +33,19 @@ __all__ = [
     "make_controls",
     "make_layout",
     "make_readouts",
+    "read_settings",
+    "slider",
     "sync_log",
 ]
 
-_STYLE = {"description_width": "190px"}
-_WIDE = widgets.Layout(width="440px")
+#: The style of every control's label, and the layout of a control (:mod:`.style`).
+LABEL_STYLE = {"description_width": style.LABEL_WIDTH}
+CONTROL_LAYOUT = widgets.Layout(width=style.CONTROL_WIDTH)
+#: The trap controls of each trap kind, in the order of :attr:`Settings.trap`.
+TRAP_CONTROLS: dict[str, tuple[str, ...]] = {"quadrupole": ("gradient", "max_field"), "coils": ("current",)}
+#: A value within this relative (and absolute) distance of the loaded one is taken as it: a
+#: browser slider sends back the value it drew, rounded in its last digits.
+SAME_VALUE = (1e-9, 1e-12)
 
 #: Readout keys and their labels, in display order.
 READOUTS: tuple[tuple[str, str], ...] = (
@@ -74,11 +87,13 @@ def grid(value: float, low: float, high: float, step: float, *, fixed_low: bool 
     return low, max(top, value), step
 
 
-def _slider(value: float, low: float, high: float, step: float, description: str, tooltip: str,
-            fmt: str = ".4g", *, fixed_low: bool = False, inside: bool = False) -> widgets.FloatSlider:
+def slider(value: float, low: float, high: float, step: float, description: str, tooltip: str,
+           fmt: str = ".4g", *, fixed_low: bool = False, inside: bool = False) -> widgets.FloatSlider:
+    """A float slider at ``value`` on the grid of :func:`grid` (``low``, ``high``,
+    ``step`` in the control's unit), labelled ``description``, shown with ``fmt``."""
     low, high, step = grid(value, low, high, step, fixed_low=fixed_low, inside=inside)
     return widgets.FloatSlider(value=value, min=low, max=high, step=step, description=description,
-                               tooltip=tooltip, readout_format=fmt, style=_STYLE, layout=_WIDE,
+                               tooltip=tooltip, readout_format=fmt, style=LABEL_STYLE, layout=CONTROL_LAYOUT,
                                continuous_update=True)
 
 
@@ -98,49 +113,50 @@ def make_controls(settings: Settings, kind: str, critical: float, reference_velo
         names.insert(0, settings.species)
     controls: dict[str, widgets.Widget] = {
         "species": widgets.Dropdown(options=names, value=settings.species, description="species",
-                                    style=_STYLE, layout=_WIDE),
+                                    style=LABEL_STYLE, layout=CONTROL_LAYOUT),
     }
     if kind == "quadrupole":
         gradient, max_field = settings.trap
-        controls["gradient"] = _slider(gradient, 0.1 * gradient, 4.0 * gradient, gradient / 200.0,
-                                       "trap gradient [T/m]", "axial field gradient of the quadrupole")
-        controls["max_field"] = _slider(max_field, 0.1 * max_field, 4.0 * max_field, max_field / 200.0,
-                                        "depth field [T]", "field magnitude where the quadrupole's depth is cut")
+        controls["gradient"] = slider(gradient, 0.1 * gradient, 4.0 * gradient, gradient / 200.0,
+                                      "trap gradient [T/m]", "axial field gradient of the quadrupole")
+        controls["max_field"] = slider(max_field, 0.1 * max_field, 4.0 * max_field, max_field / 200.0,
+                                       "depth field [T]", "field magnitude where the quadrupole's depth is cut")
     else:
         (current,) = settings.trap
         # a new coil current samples the coils' field afresh (~0.15 s): redraw when the slider is let go
-        controls["current"] = _slider(current, 0.05 * current, 4.0 * current, current / 200.0,
-                                      "coil current [A]", "current per turn in each coil of the pair (redraws on release)")
+        controls["current"] = slider(current, 0.05 * current, 4.0 * current, current / 200.0,
+                                     "coil current [A]", "current per turn in each coil of the pair (redraws on release)")
         controls["current"].continuous_update = False
     top = deceleration_range(critical, settings.deceleration)
     a = settings.deceleration
-    controls["deceleration"] = _slider(a, 0.0, top, top / 2000.0, "deceleration [m/s²]",
-                                       "constant deceleration of the trap; the well vanishes at the critical one",
-                                       fixed_low=True)
+    controls["deceleration"] = slider(a, 0.0, top, top / 2000.0, "deceleration [m/s²]",
+                                      "constant deceleration of the trap; the well vanishes at the critical one",
+                                      fixed_low=True)
     controls["deceleration_log"] = widgets.FloatLogSlider(
         value=max(a, top * 10**-LOG_DECADES), base=10.0, min=math.log10(top) - LOG_DECADES, max=math.log10(top),
-        step=0.001, description="deceleration [m/s²]", readout_format=".3e", style=_STYLE, layout=_WIDE,
-        tooltip="constant deceleration of the trap (logarithmic scale)")
+        step=0.001, description="deceleration [m/s²]", readout_format=".3e", style=LABEL_STYLE,
+        layout=CONTROL_LAYOUT, tooltip="constant deceleration of the trap (logarithmic scale)")
     controls["log_scale"] = widgets.Checkbox(value=False, description="logarithmic deceleration scale",
                                              indent=False)
     v = settings.initial_velocity
-    controls["initial_velocity"] = _slider(v, 0.3 * reference_velocity, min(3.0 * reference_velocity, top_velocity),
-                                           0.5, "initial velocity [m/s]",
-                                           "mean beam velocity at switch-on (sets the nozzle temperature)", inside=True)
-    controls["final_velocity"] = _slider(settings.final_velocity, 0.0, controls["initial_velocity"].max, 0.5,
-                                         "final velocity [m/s]", "trap velocity at the end of the deceleration",
-                                         fixed_low=True)
-    controls["relative_spread"] = _slider(settings.relative_spread, 0.002, 0.3, 0.0005,
-                                          "velocity spread (rms / mean)", "relative rms spread of the forward velocity",
-                                          ".4f")
-    controls["transverse_scale"] = _slider(settings.transverse_scale, 0.1, 4.0, 0.01, "transverse spread ×",
-                                           "scales the transverse velocity spread (skimmer and aperture diameters)",
-                                           ".2f")
+    controls["initial_velocity"] = slider(v, 0.3 * reference_velocity, min(3.0 * reference_velocity, top_velocity),
+                                          0.5, "initial velocity [m/s]",
+                                          "mean beam velocity at switch-on (sets the nozzle temperature)", inside=True)
+    controls["final_velocity"] = slider(settings.final_velocity, 0.0, controls["initial_velocity"].max, 0.5,
+                                        "final velocity [m/s]", "trap velocity at the end of the deceleration",
+                                        fixed_low=True)
+    controls["relative_spread"] = slider(settings.relative_spread, 0.002, 0.3, 0.0005,
+                                         "velocity spread (rms / mean)", "relative rms spread of the forward velocity",
+                                         ".4f")
+    controls["transverse_scale"] = slider(settings.transverse_scale, 0.1, 4.0, 0.01, "transverse spread ×",
+                                          "scales the transverse velocity spread (skimmer and aperture diameters)",
+                                          ".2f")
     span = 0.25 * reference_velocity
-    controls["mismatch"] = _slider(settings.mismatch, -span, span, 0.5, "velocity mismatch [m/s]",
-                                   "trap velocity minus mean beam velocity at switch-on", ".2f")
+    controls["mismatch"] = slider(settings.mismatch, -span, span, 0.5, "velocity mismatch [m/s]",
+                                  "trap velocity minus mean beam velocity at switch-on", ".2f")
     controls["particles"] = widgets.BoundedIntText(value=settings.particles, min=1, max=100_000_000,
-                                                   description="Monte-Carlo particles", style=_STYLE, layout=_WIDE)
+                                                   description="Monte-Carlo particles", style=LABEL_STYLE,
+                                                   layout=CONTROL_LAYOUT)
     return controls
 
 
@@ -182,7 +198,7 @@ def make_layout(controls: dict[str, widgets.Widget], actions: dict[str, widgets.
     beam = [controls[name] for name in ("initial_velocity", "final_velocity", "relative_spread",
                                         "transverse_scale", "mismatch")]
     left = widgets.VBox([*physics, deceleration_box, controls["log_scale"], readouts["critical"], *beam],
-                        layout=widgets.Layout(width="450px"))
+                        layout=widgets.Layout(width=style.COLUMN_WIDTH))
     cells: list[widgets.Widget] = []
     for key, label in READOUTS:
         cells += [widgets.HTML(html.escape(label)), readouts[key]]
@@ -199,7 +215,7 @@ def make_layout(controls: dict[str, widgets.Widget], actions: dict[str, widgets.
         view.add_class(f"tiltwell-view-{name}")
         if name in ("longitudinal", "transverse"):
             view.add_class("tiltwell-view-phase")
-    plots = widgets.GridBox(list(views.values()), layout=widgets.Layout(grid_template_columns="repeat(2, 460px)"))
+    plots = widgets.GridBox(list(views.values()), layout=widgets.Layout(grid_template_columns=style.VIEW_COLUMNS))
     caution = widgets.HTML(f"<small>{html.escape(ELECTRICAL_CAUTION)}</small>", layout=widgets.Layout(width="920px"))
     return widgets.VBox([title, widgets.HBox([left, table]), message, status, plots, buttons, caution])
 
@@ -212,11 +228,12 @@ def check_values(controls: Mapping[str, widgets.Widget], values: Mapping[str, An
         raise TiltwellError(f"unknown control(s) {', '.join(unknown)}; known: {', '.join(controls)}")
     for name, value in values.items():
         control = controls[name]
-        if isinstance(control, (widgets.FloatSlider, widgets.BoundedIntText, widgets.FloatLogSlider)):
+        if isinstance(control, (widgets.FloatSlider, widgets.IntSlider, widgets.BoundedIntText,
+                                widgets.FloatLogSlider)):
             low, high = control.min, control.max
             if isinstance(control, widgets.FloatLogSlider):
                 low, high = control.base**low, control.base**high
-            kinds = int if isinstance(control, widgets.BoundedIntText) else (int, float)
+            kinds = int if isinstance(control, (widgets.IntSlider, widgets.BoundedIntText)) else (int, float)
             if isinstance(value, bool) or not (isinstance(value, kinds) and low <= value <= high):
                 raise TiltwellError(f"{name} must be a number in [{low:g}, {high:g}] (the control's range); "
                                     f"got {value!r}")
@@ -244,3 +261,34 @@ def fit_deceleration(controls: Mapping[str, widgets.Widget], critical: float) ->
     else:
         log.min, log.max = high - LOG_DECADES, high
     sync_log(controls)
+
+
+def read_settings(controls: Mapping[str, widgets.Widget], kind: str, loaded: Settings) -> Settings:
+    """The control values as :class:`Settings`, SI; ``kind`` is the trap kind (a key of
+    :data:`TRAP_CONTROLS`). A value within :data:`SAME_VALUE` of the ``loaded`` one counts
+    as it, so a value a browser sends back rounded changes nothing."""
+    rel, abs_ = SAME_VALUE
+
+    def value(name: str, first: float) -> float:
+        number = float(controls[name].value)
+        return first if math.isclose(number, first, rel_tol=rel, abs_tol=abs_) else number
+
+    return Settings(
+        species=controls["species"].value,
+        trap=tuple(value(name, first) for name, first in zip(TRAP_CONTROLS[kind], loaded.trap)),
+        deceleration=value("deceleration", loaded.deceleration),
+        initial_velocity=value("initial_velocity", loaded.initial_velocity),
+        final_velocity=value("final_velocity", loaded.final_velocity),
+        relative_spread=value("relative_spread", loaded.relative_spread),
+        transverse_scale=value("transverse_scale", loaded.transverse_scale),
+        mismatch=value("mismatch", loaded.mismatch), particles=int(controls["particles"].value),
+    )
+
+
+def control_values(settings: Settings, kind: str) -> dict[str, Any]:
+    """The control values that show ``settings`` (keyed by control name), the
+    deceleration apart: it goes last, once the trap's range is known."""
+    return {"species": settings.species, **dict(zip(TRAP_CONTROLS[kind], settings.trap)),
+            "initial_velocity": settings.initial_velocity, "final_velocity": settings.final_velocity,
+            "relative_spread": settings.relative_spread, "transverse_scale": settings.transverse_scale,
+            "mismatch": settings.mismatch, "particles": settings.particles}

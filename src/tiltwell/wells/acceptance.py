@@ -21,10 +21,10 @@ from ..physics.constants import millikelvin
 from .energetic import (
     KNOWN_ESCAPE_SLACK,
     EnergeticAcceptance,
-    _component,
-    _touches_wall,
     energetic_acceptance,
     escape_level,
+    touches_wall,
+    well_component,
 )
 from .separatrix import Separatrix, separatrix
 from .traps import Trap
@@ -32,7 +32,9 @@ from .traps import Trap
 __all__ = [
     "AcceptanceCurve",
     "TrapAcceptance",
+    "TrapSampler",
     "acceptance_curve",
+    "acceptances_at",
     "longitudinal_acceptance",
     "trap_acceptance",
     "transverse_acceptance",
@@ -47,7 +49,7 @@ _CHECK_GRID = 33
 def longitudinal_acceptance(trap: Trap, deceleration: float = 0.0, samples: int = 2001) -> Separatrix:
     """Separatrix of ``U_eff`` on the trap's axis, the well taken near the box's middle."""
     a = as_scalar(deceleration, "deceleration", "m/s^2")
-    return _Sampler(trap, samples).longitudinal(a)
+    return TrapSampler(trap, samples).longitudinal(a)
 
 
 def transverse_acceptance(
@@ -68,7 +70,7 @@ def transverse_acceptance(
     a = as_scalar(deceleration, "deceleration", "m/s^2")
     if z is None and max_energy is None:
         return trap_acceptance(trap, a, samples=samples, include_6d=False).transverse
-    sampler = _Sampler(trap, samples)
+    sampler = TrapSampler(trap, samples)
     if z is None:
         axis = sampler.longitudinal(a)
         if not axis.bound:
@@ -135,12 +137,47 @@ def trap_acceptance(
     below the 1-D barriers (else the lower of the axis and radial barriers is used).
     """
     a = as_scalar(deceleration, "deceleration", "m/s^2")
-    return _acceptances(_Sampler(trap, samples), np.array([a]), include_6d, rtol)[0]
+    return acceptances_at(TrapSampler(trap, samples), np.array([a]), include_6d=include_6d, rtol=rtol)[0]
 
 
-def _acceptances(sampler: _Sampler, values: FloatArray, include_6d: bool, rtol: float) -> list[TrapAcceptance]:
-    """The acceptances at each deceleration of ``values``, sharing the sampler's samples
-    and checking all 3-D exits in one batched labelling."""
+def acceptances_at(
+    sampler: TrapSampler, decelerations: ArrayLike, *, include_6d: bool = False, rtol: float = 1e-2
+) -> list[TrapAcceptance]:
+    """:func:`trap_acceptance` at each of many decelerations, on one trap's samples.
+
+    Parameters
+    ----------
+    sampler : TrapSampler
+        The trap, sampled once; its cuts (and the wells it has seen) are reused, so a
+        sampler kept between calls makes each new deceleration cheap.
+    decelerations : array_like, shape (n,)
+        Decelerations [m/s^2].
+    include_6d : bool
+        Compute the energetic 6-D acceptance at each bound deceleration (slow: a 3-D grid
+        each); without it, all 3-D exits are checked on one coarse grid (one batched
+        labelling) and ``volume`` is NaN.
+    rtol : float
+        Relative accuracy of the 6-D volume, in [1e-4, 0.5] (checked where it is used,
+        by :func:`tiltwell.wells.energetic.energetic_acceptance`).
+
+    Returns
+    -------
+    list of TrapAcceptance
+        One per deceleration, in order; equal to :func:`trap_acceptance` of the sampler's
+        trap at each (with the sampler's number of samples).
+
+    Examples
+    --------
+    Deeper tilts lower the front barrier, so the longitudinal acceptance falls:
+
+    >>> import tiltwell as tw
+    >>> trap = tw.Trap(tw.IdealQuadrupole(250.0, 1.0), tw.species("OH"), ((-4e-3, 4e-3),) * 2 + ((-4e-3, 4e-3),))
+    >>> sampler = TrapSampler(trap, 1001)
+    >>> slow, fast = acceptances_at(sampler, [0.0, 0.5 * trap.critical_deceleration(1001)])
+    >>> slow.longitudinal.area > fast.longitudinal.area > 0.0
+    True
+    """
+    values = as_finite_array(decelerations, "decelerations", "m/s^2", ndim=1)
     trap = sampler.trap
     axes = [sampler.longitudinal(a) for a in values]
     sampler.prefetch_radial([axis.z_bottom for axis in axes if axis.bound])
@@ -209,7 +246,7 @@ def acceptance_curve(
 ) -> AcceptanceCurve:
     """Acceptances of ``trap`` at each of ``decelerations`` [m/s^2] (1-D array)."""
     values = as_finite_array(decelerations, "decelerations", "m/s^2", ndim=1)
-    results = _acceptances(_Sampler(trap, samples), values, include_6d, rtol)
+    results = acceptances_at(TrapSampler(trap, samples), values, include_6d=include_6d, rtol=rtol)
     return AcceptanceCurve(
         decelerations=values,
         longitudinal=np.array([r.longitudinal.area for r in results]),
@@ -221,9 +258,36 @@ def acceptance_curve(
     )
 
 
-class _Sampler:
-    """The untilted potential of one trap sampled once and reused for every deceleration
-    (the tilt only adds ``-m a z``): the axis, radial cuts by height, a coarse 3-D grid."""
+class TrapSampler:
+    """The untilted potential of one trap, sampled once and reused for every deceleration
+    (the tilt only adds ``-m a z``): the axis, radial cuts by height, a coarse 3-D grid.
+
+    Parameters
+    ----------
+    trap : Trap
+        The trap; its box gives the sampled ranges.
+    samples : int
+        Samples of each 1-D cut (>= 3): the axis along z through the box's middle in x
+        and y, and radial cuts along x at given heights z.
+
+    Attributes
+    ----------
+    trap : Trap
+    mass : float
+        The species' mass [kg].
+    centre : tuple of float
+        The box's middle (x, y, z) [m].
+    z, x : ndarray, shape (samples,)
+        Sample positions [m] of the axis and of the radial cuts.
+    axis : ndarray, shape (samples,)
+        The untilted potential on the axis [J].
+
+    Notes
+    -----
+    The sampler remembers every axis well and radial cut it has computed (keyed by the
+    deceleration and the height): a long-lived sampler grows with the number of distinct
+    decelerations asked of it. Use it from one thread at a time.
+    """
 
     def __init__(self, trap: Trap, samples: int) -> None:
         (x0, x1), (y0, y1), (z0, z1) = trap.bounds
@@ -238,6 +302,8 @@ class _Sampler:
         self.grid: tuple[FloatArray, FloatArray, list[FloatArray]] | None = None
 
     def longitudinal(self, a: float) -> Separatrix:
+        """Separatrix of the tilted axis potential at deceleration ``a`` [m/s^2] (the well
+        near the box's middle), computed once per deceleration."""
         if a not in self.axis_wells:
             self.axis_wells[a] = separatrix(self.z, self.axis - self.mass * a * self.z, self.mass, near=self.centre[2])
         return self.axis_wells[a]
@@ -250,6 +316,8 @@ class _Sampler:
             self.radial.update(zip(new, values))
 
     def transverse(self, z: float, a: float, max_energy: float | None = None) -> Separatrix:
+        """Separatrix of the radial cut along x at height ``z`` [m] at deceleration ``a``
+        [m/s^2], its energy capped at ``max_energy`` [J] when given."""
         self.prefetch_radial([z])
         cut = self.radial[z] - self.mass * a * z
         return separatrix(self.x, cut, self.mass, near=self.centre[0], max_energy=max_energy)
@@ -269,6 +337,6 @@ class _Sampler:
             near = (self.centre[0], self.centre[1], axis.z_bottom)
             start = tuple(int(np.argmin(np.abs(ax - c))) for ax, c in zip(axes3, near))
             bottom = axis.escape_energy - axis.depth
-            if _touches_wall(_component(tilted <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
+            if touches_wall(well_component(tilted <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
                 result[i] = min(cap, escape_level(tilted, start))
         return result

@@ -28,7 +28,14 @@ from scipy import ndimage
 
 from .._base.validation import TiltwellError, as_bounds, as_scalar
 
-__all__ = ["EnergeticAcceptance", "acceptance_6d", "energetic_acceptance", "escape_level"]
+__all__ = [
+    "EnergeticAcceptance",
+    "acceptance_6d",
+    "energetic_acceptance",
+    "escape_level",
+    "touches_wall",
+    "well_component",
+]
 
 Potential3D = Callable[[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]], NDArray[np.float64]]
 Bounds = tuple[tuple[float, float], ...]
@@ -218,7 +225,7 @@ def _on_grid(
     if energy is None and known_escape is not None:
         if level >= known_escape - KNOWN_ESCAPE_SLACK * (known_escape - bottom_energy):
             level = known_escape  # the integrand's energy; the region stays closed
-    region = _component(values < min(level, region_level), bottom)
+    region = well_component(values < min(level, region_level), bottom)
     cell = math.prod(float(a[1] - a[0]) for a in axes)
     kinetic = np.where(region, np.maximum(level - values, 0.0), 0.0)
     volume = (4.0 * math.pi / 3.0) * float(np.sum((2.0 * kinetic / mass) ** 1.5)) * cell
@@ -236,21 +243,58 @@ def escape_level(values: NDArray[np.float64], start: tuple[int, ...]) -> float:
     low, high = 0, levels.size - 1  # the answer is levels[k] for the smallest k that leaks
     while low < high:
         middle = (low + high) // 2
-        if _touches_wall(_component(values <= levels[middle], start)):
+        if touches_wall(well_component(values <= levels[middle], start)):
             high = middle
         else:
             low = middle + 1
     return float(levels[low])
 
 
-def _component(mask: NDArray[np.bool_], start: tuple[int, ...]) -> NDArray[np.bool_]:
+def well_component(mask: NDArray[np.bool_], start: tuple[int, ...]) -> NDArray[np.bool_]:
+    """The face-connected component of ``mask`` that holds the grid node ``start``.
+
+    Parameters
+    ----------
+    mask : ndarray of bool, shape (nx, ny, nz)
+        Grid nodes that qualify, e.g. ``values <= level`` of a gridded potential.
+    start : tuple of int
+        Index (i, j, k) of one node of ``mask``'s grid.
+
+    Returns
+    -------
+    ndarray of bool, shape (nx, ny, nz)
+        The nodes connected to ``start`` through shared faces (``scipy.ndimage.label``
+        with its default, face connectivity); all False when ``mask[start]`` is False.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> mask = np.zeros((3, 3, 3), dtype=bool)
+    >>> mask[0, 0, 0] = mask[0, 0, 1] = mask[2, 2, 2] = True
+    >>> int(well_component(mask, (0, 0, 0)).sum())
+    2
+    """
     if not mask[start]:
         return np.zeros_like(mask)
     labels, _ = ndimage.label(mask)
     return np.asarray(labels == labels[start])
 
 
-def _touches_wall(region: NDArray[np.bool_]) -> bool:
+def touches_wall(region: NDArray[np.bool_]) -> bool:
+    """Whether ``region`` (ndarray of bool, shape (nx, ny, nz)) has a node on any face of
+    its grid: for the well's component, whether particles in it reach the box's walls.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> region = np.zeros((3, 3, 3), dtype=bool)
+    >>> region[1, 1, 1] = True
+    >>> touches_wall(region)
+    False
+    >>> region[1, 1, 2] = True
+    >>> touches_wall(region)
+    True
+    """
     return bool(
         region[0].any() or region[-1].any()
         or region[:, 0].any() or region[:, -1].any()

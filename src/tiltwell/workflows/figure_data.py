@@ -145,8 +145,9 @@ def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) ->
     """Compute everything a scenario's figures show (see :class:`ScenarioFigureData`).
 
     ``particles`` replaces the scenario's ``[simulation] particles``. The acceptance and
-    tracking are those of :func:`tiltwell.workflows.report.estimate`; the sample is the one
-    it drew (the same seed); the trade-off rows come from
+    tracking are those of :func:`tiltwell.workflows.report.estimate`; the sample is the first
+    :data:`DRAWN_PARTICLES` of the one it counted and tracked (``CaptureEstimates.sample``),
+    so ``kept`` belongs to exactly those particles; the trade-off rows come from
     :func:`tiltwell.workflows.sweep.sweep`, the curve from
     :func:`tiltwell.wells.acceptance.acceptance_curve` at ``[simulation] samples``.
     """
@@ -160,8 +161,8 @@ def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) ->
     a = plan.deceleration
     estimates = estimate(scenario, built)
     tracking = estimates.tracking
-    sample = built.beam.sample(sim.particles, seed=sim.seed)[:DRAWN_PARTICLES]
-    sample[:, 5] -= built.mismatch
+    assert estimates.sample is not None  # capture_estimates always records its sample
+    sample = estimates.sample[:DRAWN_PARTICLES]  # the particles counted and tracked, trap frame
     kept = None if tracking is None else _frozen(tracking.kept[:DRAWN_PARTICLES])
     critical = built.trap.critical_deceleration(sim.samples)
     curve, rows = None, None
@@ -177,5 +178,5 @@ def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) ->
     if tracking is not None and sim.detector_distance is not None:
         arrivals = _frozen(estimates.arrival_times(plan.final_velocity, sim.detector_distance))
     return ScenarioFigureData(trap=built.trap, deceleration=a, acceptance=estimates.acceptance, beam=built.beam,
-                              mismatch=built.mismatch, sample=_frozen(sample), kept=kept, curve=curve,
+                              mismatch=built.mismatch, sample=sample, kept=kept, curve=curve,
                               sweep_rows=rows, coils=coils, tracking=tracking, arrivals=arrivals)
