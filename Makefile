@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: test lab demo bench clean
+.PHONY: test test-fast lab demo bench clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -17,6 +17,10 @@ $(STAMP): pyproject.toml | $(BIN)/python
 test: $(STAMP)
 	$(BIN)/python -m pytest
 	$(BIN)/python -m mypy src/tiltwell
+
+# The quick loop while editing (about a minute): everything but the tests marked slow.
+test-fast: $(STAMP)
+	$(BIN)/python -m pytest -m "not slow"
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/run.py

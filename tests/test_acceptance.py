@@ -10,8 +10,6 @@ from scipy import constants, special
 
 from tiltwell import (
     IdealQuadrupole,
-    LinearZeeman,
-    Species,
     TiltwellError,
     Trap,
     acceptance_curve,
@@ -22,10 +20,7 @@ from tiltwell import (
 )
 from tiltwell.wells.acceptance import TrapSampler, acceptances_at
 
-MU_B = constants.physical_constants["Bohr magneton"][0]
-AMU = constants.physical_constants["atomic mass constant"][0]
-#: An invented test particle: 1 Bohr magneton, 7 u.
-PARTICLE = Species("test-particle", 7 * AMU, LinearZeeman(MU_B), state="linear 1 mu_B")
+from conftest import MU_B, TEST_PARTICLE as PARTICLE
 
 GRADIENT, MAX_FIELD = 2.0, 0.5  # T/m, T: a 0.5 T deep, 2 T/m quadrupole
 C = MU_B * GRADIENT  # axial slope of U [N]
@@ -107,6 +102,7 @@ def test_truncated_quadrupole_six_d_at_rest() -> None:
     assert result.volume == pytest.approx(expected, rel=1e-2)
 
 
+@pytest.mark.slow
 def test_acceptance_curve_falls_to_zero_at_the_critical_deceleration() -> None:
     trap = _quadrupole_trap()
     critical = C / PARTICLE.mass
@@ -133,6 +129,7 @@ def _coil_trap() -> Trap:
     return Trap(coils, PARTICLE, ((-half, half), (-half, half), (-SEPARATION, SEPARATION)))
 
 
+@pytest.mark.slow
 def test_coil_trap_critical_deceleration_against_bisection() -> None:
     """Brent's maximisation of the axial force against brute force: bisection on whether
     a 20,001-point tilted axis cut still holds a well (an independent route)."""
@@ -189,6 +186,7 @@ def test_force_is_minus_the_gradient_of_the_effective_potential() -> None:
     assert np.allclose(trap.force(points, a), numeric, rtol=1e-5, atol=1e-8 * np.abs(numeric).max())
 
 
+@pytest.mark.slow
 def test_six_d_acceptance_falls_with_deceleration_in_a_coil_trap() -> None:
     trap = _coil_trap()
     critical = trap.critical_deceleration()

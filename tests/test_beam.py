@@ -25,7 +25,7 @@ from tiltwell.physics.source import (
     terminal_velocity,
 )
 
-U = sc.physical_constants["atomic mass constant"][0]
+from conftest import AMU as U
 #: Standard atomic weights [u] (IUPAC/CIAAW abridged table, from memory).
 WEIGHTS = {"He": 4.002602, "Ne": 20.1797, "Ar": 39.948, "Kr": 83.798, "Xe": 131.293,
            "H2": 2 * 1.00794, "N2": 2 * 14.0067, "O2": 2 * 15.9994}

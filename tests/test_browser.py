@@ -22,6 +22,8 @@ from pathlib import Path
 
 import pytest
 
+pytestmark = pytest.mark.slow  # starts JupyterLab and a real browser (make test-fast leaves it out)
+
 CHROMIUM = Path("/usr/bin/chromium")
 NOTEBOOK = Path(__file__).resolve().parents[1] / "notebooks" / "01-quickstart.ipynb"
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",

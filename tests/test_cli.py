@@ -43,6 +43,7 @@ def test_species_listing_names_every_entry(capsys: pytest.CaptureFixture[str]) -
     assert "mu_B" in capsys.readouterr().out
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     ("argv", "word"),
     [
@@ -75,6 +76,7 @@ def _scenario_file(tmp_path, **simulation):  # type: ignore[no-untyped-def]
     return sc.save(scenario, tmp_path / "plan.toml")
 
 
+@pytest.mark.slow
 def test_run_json_matches_the_library(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:  # type: ignore[no-untyped-def]
     """The command line prints what tiltwell.summarise computes (one JSON object)."""
     from tiltwell import scenario as sc
@@ -88,6 +90,7 @@ def test_run_json_matches_the_library(tmp_path, capsys: pytest.CaptureFixture[st
     assert printed["captured_fraction_mc"] is None  # trajectories switched off
 
 
+@pytest.mark.slow
 def test_run_text_summary(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:  # type: ignore[no-untyped-def]
     path = _scenario_file(tmp_path, particles=500)
     assert main(["run", str(path)]) == 0
@@ -96,6 +99,7 @@ def test_run_text_summary(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:
         assert phrase in out
 
 
+@pytest.mark.slow
 def test_demo_writes_its_scenario_and_summary(tmp_path, capsys: pytest.CaptureFixture[str]) -> None:  # type: ignore[no-untyped-def]
     """Full demo (1e5 trajectories): the written scenario loads back equal to the shipped one."""
     from tiltwell import scenario as sc
@@ -108,6 +112,7 @@ def test_demo_writes_its_scenario_and_summary(tmp_path, capsys: pytest.CaptureFi
     assert 0.0 < summary["captured_fraction_mc"] < 1.0
 
 
+@pytest.mark.slow
 def test_sweep_writes_csv(tmp_path) -> None:  # type: ignore[no-untyped-def]
     path = _scenario_file(tmp_path, particles=200, track=False)
     out = tmp_path / "trade.csv"
@@ -118,6 +123,7 @@ def test_sweep_writes_csv(tmp_path) -> None:  # type: ignore[no-untyped-def]
     assert len(lines) == 3 + 4 and lines[3].startswith("deceleration [m/s^2]")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     ("edit", "word"),
     [("gradient = 250.0", "gradeint = 250.0"), ("temperature = 300.0", "temperature = -4.0")],
@@ -141,6 +147,7 @@ def test_keys_lists_the_scenario_keys(capsys: pytest.CaptureFixture[str]) -> Non
     assert "flight_distance [m]" in capsys.readouterr().out
 
 
+@pytest.mark.slow
 def test_run_writes_the_coil_timing_table(tmp_path) -> None:  # type: ignore[no-untyped-def]
     """The CSV's passing times put the trap centre on each coil: z(t) = v0 t - a t^2 / 2
     (constant-deceleration kinematics) at the listed coil positions."""
@@ -182,6 +189,7 @@ def _coils_cli(*argv: str) -> subprocess.CompletedProcess[str]:
                           check=False)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     ("edit", "word"),
     [
@@ -212,6 +220,7 @@ def test_coils_errors_are_one_line_and_leave_the_csv_alone(tmp_path, edit: tuple
     assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.toml", "old.csv"]
 
 
+@pytest.mark.slow
 def test_coils_needs_the_section_and_an_existing_folder(tmp_path) -> None:  # type: ignore[no-untyped-def]
     path = _scenario_file(tmp_path, particles=100)
     text = path.read_text()
@@ -223,6 +232,7 @@ def test_coils_needs_the_section_and_an_existing_folder(tmp_path) -> None:  # ty
     assert completed.returncode == 2 and "existing folder" in completed.stderr and not missing.exists()
 
 
+@pytest.mark.slow
 def test_coils_track_writes_the_device_check_and_its_figures(tmp_path) -> None:  # type: ignore[no-untyped-def]
     # The numbers' physics is checked in tests/test_devicecompare.py and tests/test_device.py;
     # here: the command wires the scenario's beam into compare_device, the box shrinks to the

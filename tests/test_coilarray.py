@@ -285,6 +285,7 @@ def test_phases_bound_with_zero_on_target() -> None:
     assert result.mean_transverse == pytest.approx(np.mean(result.transverse))
 
 
+@pytest.mark.slow
 def test_six_d_acceptance_per_phase_matches_monte_carlo_volume() -> None:
     # Reference: brute-force Monte Carlo of the energetic 6-D volume (DESIGN.md's definition)
     # integral over {U < E} of (4 pi / 3) (2 (E - U) / m)^(3/2) d^3r, with 4e5 uniform points

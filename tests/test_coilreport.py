@@ -40,8 +40,7 @@ FIRST = -(ACTIVE // 2) * PITCH  # the row starts at -(active/2) pitch (the [coil
 HALF_WIDTHS = (4 * 0.8 / 250.0, 4 * 0.8 / 250.0, 2 * 0.8 / 250.0)  # the quadrupole's default trap box
 MU0 = constants.mu_0
 
-# Kinematics: v0 = sqrt(5 k T / m_Kr), krypton 83.798 u (standard atomic weight, from memory).
-V0 = math.sqrt(5 * constants.k * 300.0 / (83.798 * constants.atomic_mass))
+from conftest import KRYPTON_SPEED_300K as V0  # the krypton carrier's terminal speed (closed form)
 DECELERATION = (V0**2 - FINAL**2) / (2 * LENGTH)
 DURATION = (V0 - FINAL) / DECELERATION
 
@@ -113,6 +112,7 @@ def test_the_row_covers_the_length_with_half_the_active_coils_beyond() -> None:
     assert coil_array(other).count == math.ceil(length / PITCH) + ACTIVE + 1
 
 
+@pytest.mark.slow
 def test_csv_currents_move_the_zero_along_the_schedule(printed: tuple[dict[str, Any], np.ndarray, np.ndarray]) -> None:
     summary, table, indices = printed
     times, currents = table[:, 0], table[:, 1:]
@@ -165,6 +165,7 @@ def test_gradient_and_current_limit_from_the_inline_field(
         np.testing.assert_allclose(currents[row, np.searchsorted(indices, coils_here)], reference, atol=0.05)
 
 
+@pytest.mark.slow
 def test_a_lower_limit_cuts_the_gradient_where_the_inline_currents_exceed_it() -> None:
     # Reference: the inline weighted minimum-norm currents (minimum_norm above; the demo's never
     # reach 400 A, so they are unscaled) at every table time: where their peak I_p exceeds a
@@ -225,6 +226,7 @@ def brute_force_radial(z0: float, z_bottom: float, cap: float) -> float:
     return float(4 * integrate.trapezoid(speed, x[: end + 1]))  # both sides of the axis
 
 
+@pytest.mark.slow
 def test_phase_scan_against_brute_force_cuts(printed: tuple[dict[str, Any], np.ndarray, np.ndarray]) -> None:
     summary, _, _ = printed
     phases = summary["phases"]

@@ -20,7 +20,7 @@ WOUND = tw.CoilArray(count=12, pitch=0.006, radius=0.008, first=-0.02, turns=20,
 ROW = tw.CoilArray(count=40, pitch=0.005, radius=0.008, first=-0.02, turns=50)
 OH = tw.species("OH")  # linear Zeeman state
 GRADIENT = 1.0
-BOX = (0.004, 0.004, 0.006)
+from conftest import COIL_BOX as BOX
 
 
 def _exact_unit_coil(points: np.ndarray) -> np.ndarray:
@@ -98,6 +98,7 @@ def _trap_frame_energy(states: np.ndarray, z_trap: float) -> np.ndarray:
     return 0.5 * OH.mass * np.sum(states[:, 3:] ** 2, axis=1) + OH.zeeman.energy(magnitude)
 
 
+@pytest.mark.slow
 def test_uniform_motion_keeps_trap_frame_energy_to_the_ripple() -> None:
     # Uniform motion (UniformMotion, since a Schedule must decelerate): in the trap frame the
     # only time dependence is the hand-over from coil to coil, so the energy can change only
@@ -127,6 +128,7 @@ def test_uniform_motion_keeps_trap_frame_energy_to_the_ripple() -> None:
     assert phases.ripple < 0.1  # the premise: a small ripple
 
 
+@pytest.mark.slow
 def test_decelerating_device_survival_agrees_with_rigid_trap() -> None:
     # Reference: tiltwell.track in the trap frame with an IdealQuadrupole of the same axial
     # gradient capped at the array's mean depth (moving_trap_phases), deceleration 200 m/s^2
@@ -295,6 +297,7 @@ def test_device_integrator_order_against_solve_ivp(method: str, order: int) -> N
     assert np.max(np.abs(free - reference)) > 1e-4
 
 
+@pytest.mark.slow
 def test_planned_waveforms_converge_as_the_plan_step_squared() -> None:
     # Reference: linear interpolation of a smooth waveform errs as h^2 / 8 max|I''| (the
     # textbook bound, e.g. Burden & Faires, Numerical Analysis, sect. 3.1, from memory), so
@@ -320,6 +323,7 @@ def test_planned_waveforms_converge_as_the_plan_step_squared() -> None:
         assert 3.0 < coarse / fine < 5.5
 
 
+@pytest.mark.slow
 def test_plan_at_every_step_reproduces_exact_currents() -> None:
     # Independent route: a plan with one point per tracking step interpolates nothing, so it must
     # reproduce the run with exact currents (differences at rounding level only).
@@ -334,6 +338,7 @@ def test_plan_at_every_step_reproduces_exact_currents() -> None:
     np.testing.assert_allclose(planned.final, exact.final, rtol=0.0, atol=1e-9)
 
 
+@pytest.mark.slow
 def test_record_every_thins_the_survival_curve() -> None:
     # The thinned curve must be the full curve at the recorded times (same run, other record).
     schedule = tw.constant_deceleration(20.0, 19.0, deceleration=300.0)

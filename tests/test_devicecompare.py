@@ -24,7 +24,7 @@ from tiltwell.dynamics.tracking import TrackingResult
 RADIUS = 0.008  # m
 TURNS = 50
 GRADIENT = 2.0  # T/m
-BOX = (0.004, 0.004, 0.006)  # m
+from conftest import COIL_BOX as BOX
 OH = tw.species("OH")  # linear Zeeman state
 PITCHES = {1.0: 4, 0.6: 6, 0.35: 10}  # pitch / radius -> active coils (a window of ~3.5 radii)
 SCHEDULE = tw.constant_deceleration(3.0, 1.0, deceleration=400.0)  # 5 ms, about half the critical mu B'/m
@@ -243,6 +243,7 @@ def _scan_and_comparison(ratio: float) -> tuple[tw.PhaseScan, DeviceComparison]:
     return scan, comparison
 
 
+@pytest.mark.slow
 def test_ripple_and_disagreement_fall_as_the_pitch_shrinks() -> None:
     # Physics trend (independent routes agreeing in a limit): as the pitch shrinks at fixed
     # radius, gradient and window, the hand-over ripple vanishes and the lab-frame tracking
@@ -279,6 +280,7 @@ def test_small_ripple_survival_curves_agree_within_errors() -> None:
     assert 0.3 < comparison.device.fraction < 0.5  # the comparison is informative: much is lost
 
 
+@pytest.mark.slow
 def test_fast_ripple_device_follows_the_phase_averaged_potential() -> None:
     # Reference: averaging over a rapidly oscillating force (Landau and Lifshitz, Mechanics,
     # sect. 30, from memory): to first order the slow motion feels the time average of the
@@ -297,6 +299,7 @@ def test_fast_ripple_device_follows_the_phase_averaged_potential() -> None:
     assert against_field.ripple_loss < -3.0 * against_field.ripple_loss_error
 
 
+@pytest.mark.slow
 def test_coasting_after_the_schedule_and_recording_every_few_steps() -> None:
     # Reference: the device run, which follows the schedule's z_trap(t) itself, including
     # the coast at v_f after its duration (1 ms of decelerating, then 2 ms at 2.6 m/s). The

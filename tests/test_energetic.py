@@ -63,6 +63,7 @@ def test_harmonic_well_is_a_six_ball() -> None:
     assert volume == pytest.approx(expected, rel=1e-2)
 
 
+@pytest.mark.slow
 def test_escape_is_a_minimax_path_not_the_lowest_wall() -> None:
     """A spherical rim U = H (r/R)^2 exp(1 - (r/R)^2) peaks at H on r = R and falls to
     ~0.03 H at the walls: the escape energy is the rim, H, not the lowest wall value. The
@@ -126,6 +127,7 @@ def test_nan_potential_is_reported() -> None:
         acceptance_6d(lambda x, y, z: np.where(x + 0 * y * z > 0.5, np.nan, 1.0), 1.0, ((-1, 1), (-1, 1), (-1, 1)))
 
 
+@pytest.mark.slow
 def test_a_slope_falling_to_a_wall_is_not_the_well() -> None:
     """Tilted so far that the lowest grid value sits on a wall: the default start is still
     the interior minimum, and the volume is that of the tilted V-cone well (it equals the
@@ -154,6 +156,7 @@ def _kinked_reference() -> float:
     return value
 
 
+@pytest.mark.slow
 def test_known_escape_energy_fixes_an_undersampled_kink() -> None:
     """The grid samples a kinked exit only to O(h): told the exact escape energy (as the
     trap code does from a fine 1-D cut), the volume meets the 1e-2 target; on its own

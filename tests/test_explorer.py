@@ -26,9 +26,7 @@ from tiltwell.workflows.report import build
 COILS = (Path(__file__).parent / "data" / "coil_pair.toml").read_text(encoding="utf-8")
 
 
-def mk(energy: np.ndarray | float) -> np.ndarray:
-    """J -> mK with CODATA's Boltzmann constant (scipy.constants), independent of tiltwell."""
-    return np.asarray(energy) / sc.k * 1e3
+from conftest import millikelvin_of as mk  # J -> mK with scipy's k_B, independent of tiltwell
 
 
 @pytest.fixture(scope="module")
@@ -63,6 +61,7 @@ def assert_marked(app: Explorer, plane: str, position: np.ndarray, velocity: np.
         np.testing.assert_allclose(data["v"], velocity[chosen], rtol=1e-12, atol=0)
 
 
+@pytest.mark.slow
 def test_default_is_the_demo_and_displays_as_a_widget(app: Explorer) -> None:
     assert app.controls["species"].value == "OH"
     assert scenario_io.load(DEMO).trap.gradient == app.controls["gradient"].value
@@ -281,6 +280,7 @@ def test_a_tiny_deceleration_skips_an_absurd_coil_table(app: Explorer) -> None:
     assert app.errors == []
 
 
+@pytest.mark.slow
 def test_invalid_beam_blanks_the_views_with_a_message() -> None:
     wide = scenario_io.load(DEMO).replace("beam", skimmer_diameter=0.03)
     app = explore(wide, auto_tradeoff=False)
@@ -324,6 +324,7 @@ control_values = st.fixed_dictionaries({
 })
 
 
+@pytest.mark.slow
 @settings(max_examples=40, deadline=None, database=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(values=control_values, fraction=st.floats(0.0, 2.0))
 def test_any_setting_gives_a_picture_never_an_exception(app: Explorer, values: dict[str, object],
@@ -365,6 +366,7 @@ def test_save_html_is_standalone_with_inline_bokehjs(app: Explorer, tmp_path: Pa
     assert list(tmp_path.iterdir()) == [path]
 
 
+@pytest.mark.slow
 def test_monte_carlo_equals_capture_estimates(app: Explorer) -> None:
     app.update(particles=300)
     stale = app.readouts["tracked"].value
@@ -395,6 +397,7 @@ def test_monte_carlo_equals_capture_estimates(app: Explorer) -> None:
     assert app.readouts["tracked"].value == "— (Monte-Carlo button)"
 
 
+@pytest.mark.slow
 def test_a_result_for_old_settings_is_discarded(app: Explorer) -> None:
     app.update(particles=200)
     future = app.run_monte_carlo()
@@ -406,6 +409,7 @@ def test_a_result_for_old_settings_is_discarded(app: Explorer) -> None:
     assert app.errors == []
 
 
+@pytest.mark.slow
 def test_tradeoff_recomputes_in_the_background(tmp_path: Path) -> None:
     app = explore()
     try:
@@ -428,6 +432,7 @@ def test_tradeoff_recomputes_in_the_background(tmp_path: Path) -> None:
         app.close()
 
 
+@pytest.mark.slow
 def test_coil_scenario_has_a_current_control(tmp_path: Path) -> None:
     path = tmp_path / "coils.toml"
     path.write_text(COILS, encoding="utf-8")
@@ -455,6 +460,7 @@ def test_save_figures_without_the_figures_module(app: Explorer, monkeypatch: pyt
     assert list(tmp_path.iterdir()) == []
 
 
+@pytest.mark.slow
 def test_compute_6d_equals_trap_acceptance(app: Explorer) -> None:
     volume = app.compute_6d().result(timeout=120)
     trap, _, a, _, _ = direct(app)

@@ -56,9 +56,7 @@ deceleration = 5000.0
 """
 
 
-def mk(energy: Any) -> np.ndarray:
-    """J -> mK with CODATA's Boltzmann constant (scipy.constants), independent of tiltwell."""
-    return np.asarray(energy) / sc.k * 1e3
+from conftest import millikelvin_of as mk  # J -> mK with scipy's k_B, independent of tiltwell
 
 
 def loop_bz(current_turns: np.ndarray, radius: float, planes: np.ndarray, z: float) -> float:
@@ -112,6 +110,7 @@ def drawn_currents(part: CoilPart) -> tuple[np.ndarray, list[int], np.ndarray, n
     return times, list(data["coil"]), np.asarray(data["position"]) * 1e-3, np.array([np.asarray(y) for y in data["ys"]])
 
 
+@pytest.mark.slow
 def test_the_part_is_a_closed_section_that_computes_only_when_open() -> None:
     app = explore(auto_tradeoff=False)
     try:
@@ -151,6 +150,7 @@ def test_defaults_follow_the_scenario_and_reach_the_gradient(app: Explorer) -> N
     assert part.message.value == ""
 
 
+@pytest.mark.slow
 def test_defaults_without_a_pitch_are_invented_and_follow_a_coil_pair(tmp_path: Path) -> None:
     path = tmp_path / "pair.toml"
     path.write_text(PAIR, encoding="utf-8")
@@ -233,6 +233,7 @@ def test_the_drawn_currents_carry_the_field_zero_with_the_schedule(app: Explorer
         np.testing.assert_allclose(slopes, wanted, rtol=1e-12)  # measured within 4.4e-16
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(("main", "species_name"), [({}, "OH"), ({"species": "NH", "fraction": 0.3}, "NH")],
                          ids=["demo", "NH at 0.3 critical"])
 def test_phase_scan_equals_moving_trap_phases(app: Explorer, main: dict[str, Any], species_name: str) -> None:

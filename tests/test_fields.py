@@ -241,6 +241,7 @@ def magpylib_midpoint_coil(coil: Coil, cells: int, points: np.ndarray) -> np.nda
     return magpylib.getB(loops, points, sumup=True)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     "coil",
     [Coil(0.1, 0.01, 5.0, 40, width=0.02, height=0.03, filaments=8), Coil(0.03, -0.2, -80.0, 7, 0.01, 0.004, 8)],

@@ -331,6 +331,7 @@ def test_png_has_width_times_dpi_pixels(small: Figure, tmp_path: Path) -> None:
     np.testing.assert_allclose(small.get_size_inches(), [6.0, 4.0])  # the figure keeps its size
 
 
+@pytest.mark.slow
 def test_pdf_starts_with_its_magic(small: Figure, tmp_path: Path) -> None:
     data = figures.save(small, tmp_path / "f.pdf", width=3.5, height=2.5).read_bytes()
     assert data.startswith(b"%PDF") and len(data) > 1000
@@ -342,6 +343,7 @@ def test_svg_parses_with_the_width_in_points(small: Figure, tmp_path: Path) -> N
     assert (root.get("width"), root.get("height")) == ("252pt", "180pt")  # 72 pt per inch
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("suffix", [".pdf", ".svg", ".png"], ids=["pdf", "svg", "png"])
 def test_save_is_reproducible_atomic_and_readable(small: Figure, tmp_path: Path, suffix: str) -> None:
     first = figures.save(small, tmp_path / f"f{suffix}", dpi=50).read_bytes()
@@ -377,6 +379,7 @@ def demo_scenario(**simulation: Any) -> scenario.Scenario:
     return scenario.load(DEMO_SCENARIO).replace("simulation", rtol=0.3, **simulation).replace("coils", phases=3)
 
 
+@pytest.mark.slow
 def test_scenario_figures_writes_every_figure(tmp_path: Path) -> None:
     demo = demo_scenario(detector_distance=0.1)
     written = write_scenario_figures(demo, tmp_path / "out", formats=("svg", "png"), width=3.0, height=2.0,
@@ -387,6 +390,7 @@ def test_scenario_figures_writes_every_figure(tmp_path: Path) -> None:
     assert struct.unpack(">II", (tmp_path / "out" / "survival.png").read_bytes()[16:24]) == (300, 200)
 
 
+@pytest.mark.slow
 def test_cli_figures_writes_the_files(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     path = scenario.save(demo_scenario(particles=300), tmp_path / "s.toml")
     status = main(["figures", str(path), "--out", str(tmp_path / "figs"), "--formats", "png",

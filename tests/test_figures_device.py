@@ -208,6 +208,7 @@ def test_arrival_histograms_are_numpys_of_the_free_flight_times(comparison: Devi
 # ---- export, axes and bad input -------------------------------------------------------------
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("suffix", [".pdf", ".svg", ".png"], ids=["pdf", "svg", "png"])
 def test_device_figures_export(comparison: DeviceComparison, made: list[Figure], tmp_path: Path, suffix: str) -> None:
     # File headers: "%PDF" (ISO 32000), an <svg> root (W3C SVG), the PNG signature and

@@ -33,6 +33,7 @@ def _moving_bucket():  # type: ignore[no-untyped-def]
     return separatrix(z, -np.cos(z) - 0.4 * z, 1.0)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     ("mean", "cov"),
     [

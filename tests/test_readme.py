@@ -20,6 +20,7 @@ def test_readme_has_a_tour_and_the_two_commands() -> None:
     assert _python_blocks()
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("index", range(len(_python_blocks())))
 def test_readme_python_block_runs(index: int, capsys: pytest.CaptureFixture[str]) -> None:
     namespace: dict[str, object] = {}

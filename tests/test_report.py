@@ -9,8 +9,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from scipy import constants
 
+from conftest import KRYPTON_SPEED_300K
 from tiltwell import scenario as sc
 from tiltwell import species, summarise, sweep
 from tiltwell.coils.array import CoilArray, waveforms
@@ -31,10 +31,11 @@ def summary() -> dict:  # type: ignore[type-arg]
     return summarise(_small())
 
 
+@pytest.mark.slow
 def test_summary_kinematics_against_closed_forms(summary: dict) -> None:  # type: ignore[type-arg]
     """v0 = sqrt(5 k T / m_Kr) (monatomic terminal velocity; Kr 83.798 u, standard atomic
     weight from memory); a = (v0^2 - vf^2) / (2 L); t = (v0 - vf) / a (kinematics)."""
-    v0 = math.sqrt(5 * constants.k * 300.0 / (83.798 * constants.atomic_mass))
+    v0 = KRYPTON_SPEED_300K  # the closed form above, written out in conftest
     assert summary["initial_velocity"] == pytest.approx(v0, rel=1e-9)
     assert summary["deceleration"] == pytest.approx((v0**2 - 20.0**2) / (2 * 1.5), rel=1e-9)
     assert summary["duration"] == pytest.approx((v0 - 20.0) / summary["deceleration"], rel=1e-9)
@@ -70,6 +71,7 @@ def serial_rows() -> list[dict]:  # type: ignore[type-arg]
     return sweep(_small(500, track=False), np.array([2e4, 4e4, 6e4, 8e4]))
 
 
+@pytest.mark.slow
 def test_sweep_trades_length_against_acceptance(serial_rows: list[dict]) -> None:  # type: ignore[type-arg]
     """Harder deceleration: shorter machine (L = (v0^2 - vf^2) / 2a exactly), fewer coils,
     smaller acceptance and captured fraction."""
@@ -81,6 +83,7 @@ def test_sweep_trades_length_against_acceptance(serial_rows: list[dict]) -> None
         assert all(b < a for a, b in zip(values, values[1:])), key
 
 
+@pytest.mark.slow
 def test_sweep_on_a_dask_cluster_equals_the_serial_sweep(serial_rows: list[dict]) -> None:  # type: ignore[type-arg]
     """The same points through a Dask LocalCluster's concurrent.futures executor."""
     distributed = pytest.importorskip("distributed")
@@ -90,6 +93,7 @@ def test_sweep_on_a_dask_cluster_equals_the_serial_sweep(serial_rows: list[dict]
     assert rows == serial_rows
 
 
+@pytest.mark.slow
 def test_sweep_over_lengths_and_csv(tmp_path: Path) -> None:
     rows = sweep(_small(300, track=False), lengths=[1.0, 2.0])
     assert [r["length"] for r in rows] == pytest.approx([1.0, 2.0], rel=1e-12)
@@ -113,6 +117,7 @@ def test_sweep_bad_input(kwargs: dict, word: str) -> None:  # type: ignore[type-
         sweep(_small(10, track=False), **kwargs)
 
 
+@pytest.mark.slow
 def test_time_of_flight_in_the_summary() -> None:
     """With a detector 0.2 m beyond the released trap (final speed 20 m/s) the mean
     arrival time is near 0.2 m / 20 m/s = 10 ms; the spread comes from the trap-frame

@@ -17,7 +17,6 @@ from scipy import constants
 from tiltwell import (
     BreitRabi,
     IdealQuadrupole,
-    LinearZeeman,
     Species,
     TiltwellError,
     Trap,
@@ -28,9 +27,7 @@ from tiltwell import (
 from tiltwell.dynamics.integrators import INTEGRATORS
 from tiltwell.dynamics.tracking import FieldMap, TrackingResult, track
 
-MU_B = constants.physical_constants["Bohr magneton"][0]
-AMU = constants.physical_constants["atomic mass constant"][0]
-PARTICLE = Species("test-particle", 7 * AMU, LinearZeeman(MU_B), state="linear 1 mu_B")
+from conftest import AMU, MU_B, TEST_PARTICLE as PARTICLE
 
 # --- a smooth well: |B| = B0 + b r^2 / 2 + c r^4 / 4 ---------------------------------------
 
@@ -227,6 +224,7 @@ def test_verlet_energy_has_no_drift() -> None:
 # --- 1-D and 3-D survival against the acceptance -------------------------------------------
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("fraction", [0.2, 0.5])
 def test_axis_survival_matches_separatrix(fraction: float) -> None:
     """Particles on the axis (no transverse motion) in a quadrupole decelerating at
