@@ -14,7 +14,7 @@ import ipywidgets as widgets
 
 from . import style
 from .coilmodel import CoilSettings
-from .widgets import CONTROL_LAYOUT, LABEL_STYLE, slider
+from .widgets import CONTROL_LAYOUT, LABEL_STYLE, readout_table, slider
 from ..physics.hardware import ELECTRICAL_CAUTION
 
 __all__ = ["READOUTS", "TITLE", "make_actions", "make_controls", "make_layout", "make_readouts", "settings_of"]
@@ -82,11 +82,7 @@ def make_layout(controls: Mapping[str, widgets.Widget], actions: Mapping[str, wi
                          "trap box are those set above")
     left = widgets.VBox([*controls.values(), widgets.HBox(list(actions.values()))],
                         layout=widgets.Layout(width=style.COLUMN_WIDTH))
-    cells: list[widgets.Widget] = []
-    for key, label in READOUTS:
-        cells += [widgets.HTML(html.escape(label)), readouts[key]]
-    table = widgets.GridBox(cells, layout=widgets.Layout(grid_template_columns="250px 300px", width="560px"))
-    table.add_class("tiltwell-coils-readouts")
+    table = readout_table(READOUTS, readouts, ("250px", "300px"), "tiltwell-coils-readouts")
     caution = widgets.HTML(f"<small>{html.escape(ELECTRICAL_CAUTION)}</small>",
                            layout=widgets.Layout(width=style.CONTROL_WIDTH))
     for name, view in views.items():

@@ -34,6 +34,7 @@ __all__ = [
     "make_layout",
     "make_readouts",
     "read_settings",
+    "readout_table",
     "slider",
     "sync_log",
 ]
@@ -187,6 +188,20 @@ def make_readouts() -> dict[str, widgets.HTML]:
     return readouts
 
 
+def readout_table(labels: tuple[tuple[str, str], ...], readouts: Mapping[str, widgets.Widget],
+                  columns: tuple[str, str], css_class: str) -> widgets.GridBox:
+    """A two-column grid of (label, value widget) rows, one per ``(key, label)`` of ``labels``;
+    ``columns`` are the CSS widths of the two columns, ``css_class`` names the grid for tests
+    and the browser."""
+    cells: list[widgets.Widget] = []
+    for key, label in labels:
+        cells += [widgets.HTML(html.escape(label)), readouts[key]]
+    width = f"{sum(int(c.removesuffix('px')) for c in columns) + 10}px"
+    table = widgets.GridBox(cells, layout=widgets.Layout(grid_template_columns=" ".join(columns), width=width))
+    table.add_class(css_class)
+    return table
+
+
 def make_layout(controls: dict[str, widgets.Widget], actions: dict[str, widgets.Widget],
                 readouts: dict[str, widgets.HTML], views: dict[str, widgets.Widget],
                 message: widgets.HTML, status: widgets.HTML, deceleration_box: widgets.Box) -> widgets.VBox:
@@ -199,11 +214,7 @@ def make_layout(controls: dict[str, widgets.Widget], actions: dict[str, widgets.
                                         "transverse_scale", "mismatch")]
     left = widgets.VBox([*physics, deceleration_box, controls["log_scale"], readouts["critical"], *beam],
                         layout=widgets.Layout(width=style.COLUMN_WIDTH))
-    cells: list[widgets.Widget] = []
-    for key, label in READOUTS:
-        cells += [widgets.HTML(html.escape(label)), readouts[key]]
-    table = widgets.GridBox(cells, layout=widgets.Layout(grid_template_columns="220px 260px", width="490px"))
-    table.add_class("tiltwell-readouts")
+    table = readout_table(READOUTS, readouts, ("220px", "260px"), "tiltwell-readouts")
     buttons = widgets.VBox([
         widgets.HBox([actions["monte_carlo"], controls["particles"]]),
         widgets.HBox([actions["acceptance_6d"], actions["tradeoff"], actions["reset"]]),
