@@ -17,6 +17,8 @@ from .physics.beam import Beam, PhasePlane
 from .physics.constants import from_millikelvin, millikelvin
 from .physics.fields import Coil, CoilSet, IdealQuadrupole, anti_helmholtz, loop_field
 from .physics.hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
+from .physics.inductance import mutual_inductance
+from .physics.limits import HardwareLimits
 from .physics.source import Aperture, Gas, Source, gas, mixture, terminal_velocity
 from .physics.species import BreitRabi, LinearZeeman, Species, TabulatedZeeman, catalogue, species
 from .wells.acceptance import (
@@ -32,6 +34,7 @@ from .wells.overlap import energetic_fraction, gaussian_fraction, plane_product_
 from .wells.separatrix import Separatrix, separatrix
 from .wells.traps import Trap
 from .coils.array import CoilArray, CurrentPlan, trap_currents, waveforms
+from .coils.drive import DriveLoad, drive_load
 from .coils.moving import PhaseScan, moving_trap_phases
 from .coils.schedule import CoilTiming, Schedule, arrival_times, coil_timing, constant_deceleration
 from .dynamics.capture import CaptureEstimates, capture_estimates
@@ -68,12 +71,14 @@ __all__ = [
     "CoilTiming",
     "CurrentPlan",
     "DeviceComparison",
+    "DriveLoad",
     "ELECTRICAL_CAUTION",
     "EnergeticAcceptance",
     "Explorer",
     "FieldMap",
     "Gas",
     "HardwareEstimate",
+    "HardwareLimits",
     "IdealQuadrupole",
     "LinearZeeman",
     "PhaseAveragedField",
@@ -100,6 +105,7 @@ __all__ = [
     "coil_timing",
     "compare_device",
     "constant_deceleration",
+    "drive_load",
     "energetic_acceptance",
     "energetic_fraction",
     "explore",
@@ -112,6 +118,7 @@ __all__ = [
     "millikelvin",
     "mixture",
     "moving_trap_phases",
+    "mutual_inductance",
     "plane_product_fraction",
     "scenario",
     "separatrix",

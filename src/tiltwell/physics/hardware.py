@@ -21,6 +21,7 @@ __all__ = [
     "ELECTRICAL_CAUTION",
     "HardwareEstimate",
     "hardware_estimate",
+    "ring_inductance",
 ]
 
 #: Copper at 20 °C, CRC Handbook of Chemistry and Physics (from memory). The resistivity
@@ -35,6 +36,17 @@ ELECTRICAL_CAUTION: str = (
     "not a design: follow local electrical-safety codes, and have current drivers, interlocks "
     "and coil mounts designed and reviewed by qualified, licensed people."
 )
+
+
+def ring_inductance(radius: float, section_radius: float) -> float:
+    """Self-inductance [H] of one thin ring of round cross-section, uniform current.
+
+    ``mu0 R (ln(8 R / a) - 7/4)`` for mean radius ``radius`` R [m] and section radius
+    ``section_radius`` a [m], a << R (Grover, Inductance Calculations, ch. on circular rings;
+    from memory; the round section's geometric mean distance from itself is a e^(-1/4)).
+    No checks: callers validate (0 < a < R); multiply by N^2 for N turns in that section.
+    """
+    return VACUUM_PERMEABILITY * radius * (math.log(8.0 * radius / section_radius) - 1.75)
 
 
 @dataclass(frozen=True)
@@ -178,7 +190,7 @@ def hardware_estimate(
     n = int(turns)
     if inductance is None:
         a = as_scalar(winding_radius, "winding_radius", "m", low=0.0, high=radius, low_open=True, high_open=True)
-        henry = VACUUM_PERMEABILITY * n * n * radius * (math.log(8.0 * radius / a) - 1.75)
+        henry = n * n * ring_inductance(radius, a)
     else:
         henry = as_scalar(inductance, "inductance", "H", low=0.0, low_open=True)
     resistance = rho * n * 2.0 * math.pi * radius / area

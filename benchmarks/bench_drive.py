@@ -1,0 +1,52 @@
+"""Speed of a coil row's whole-shot loads (:func:`tiltwell.coils.drive.drive_load`) next to
+planning the same table's currents (:func:`tiltwell.waveforms`), which every coil run does.
+
+Run standalone (``PYTHONPATH=src python benchmarks/bench_drive.py``) to print the rows, or
+call :func:`run`. The row is an invented one: 300 coils at a 12 mm pitch, 6 active, and a
+table of 10,000 times over a 0.5 m deceleration.
+"""
+
+from __future__ import annotations
+
+import statistics
+import time
+from collections.abc import Callable
+
+import numpy as np
+
+from tiltwell import CoilArray, constant_deceleration, waveforms
+from tiltwell.coils.drive import drive_load
+
+REPEATS = 5
+TIMES = 10_000
+
+
+def median_time(call: Callable[[], object], repeats: int = REPEATS) -> float:
+    """Median wall time [s] of ``repeats`` calls, after one warm-up call."""
+    call()
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        call()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def run() -> list[dict[str, object]]:
+    """drive_load against waveforms on one table; ``ratio`` is drive_load's time over the plan's."""
+    rows = []
+    for count in (130, 300):
+        array = CoilArray(count, 0.012, 0.019, turns=200, width=0.006, height=0.010, active=6, first=-0.036)
+        schedule = constant_deceleration(420.0, 60.0, length=min(0.5, 0.012 * (count - 7)))
+        times = np.linspace(0.0, schedule.duration, TIMES)
+        currents = waveforms(array, schedule, 60.0, times).currents
+        ours = median_time(lambda: drive_load(array, times, currents, rise_time=5e-6, repetition_rate=1.0))
+        plan = median_time(lambda: waveforms(array, schedule, 60.0, times))
+        rows.append({"case": f"drive_load {count} coils x {TIMES} times (ref: waveforms)", "tiltwell_s": ours,
+                     "reference_s": plan, "ratio": ours / plan})
+    return rows
+
+
+if __name__ == "__main__":
+    for entry in run():
+        print(entry)
