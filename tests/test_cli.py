@@ -165,7 +165,12 @@ def test_run_writes_the_coil_timing_table(tmp_path) -> None:  # type: ignore[no-
     plan = build(sc.load(path)).schedule
     v0, a = plan.initial_velocity, plan.deceleration
     positions, times = rows[:, 0], rows[:, 1]
-    assert np.allclose(v0 * times - 0.5 * a * times**2, positions, rtol=1e-9, atol=1e-12)
+    # every coil of the row is listed; those before the start (after the end) are "passed" at 0 (the duration)
+    inside = (positions >= 0.0) & (positions <= plan.length)
+    assert inside.sum() == 126 and positions.size == 130  # 0, 12 mm, ..., 1.5 m and two coils beyond each end
+    assert np.allclose(v0 * times[inside] - 0.5 * a * times[inside] ** 2, positions[inside], rtol=1e-9, atol=1e-12)
+    assert np.all(times[positions < 0.0] == 0.0)
+    assert np.allclose(times[positions > plan.length], (v0 - plan.final_velocity) / a, rtol=1e-12)
     assert "electrical-safety" in out.read_text()
 
 
@@ -178,8 +183,8 @@ def test_coils_text_summary_carries_the_caution(tmp_path, capsys: pytest.Capture
     out = tmp_path / "waveforms.csv"
     assert main(["coils", str(path), "--csv", str(out)]) == 0
     text = capsys.readouterr().out
-    for phrase in ("132 coils at 12 mm pitch", "mK", "mm*m/s", "mH", "kV", "I^2 t", "CAUTION", "electrical-safety",
-                   "coil k at z = -36 mm + k x 12 mm", f"wrote {out}"):
+    for phrase in ("130 coils at 12 mm pitch", "mK", "mm*m/s", "mH", "kV", "I^2 t", "CAUTION", "electrical-safety",
+                   "coil k at z = -24 mm + k x 12 mm", f"wrote {out}"):
         assert phrase in text
     assert "electrical-safety" in out.read_text()
 
@@ -195,7 +200,7 @@ def _coils_cli(*argv: str) -> subprocess.CompletedProcess[str]:
     [
         (("pitch = 0.012 ", ""), "[deceleration] pitch"),
         (("turns = 200", "turns = -200"), "[coils] turns"),
-        (("width = 0.006", "width = 0.02"), "radius - width/2"),
+        (("width = 0.006", "width = 0.04"), "radius - width/2"),  # no bore (a narrow one only shrinks the box)
         (("plan_step = 2.0e-6", "plan_step = 1e-11"), "[coils] plan_step"),
     ],
     ids=["no-pitch", "negative-turns", "bore-too-small", "table-too-long"],

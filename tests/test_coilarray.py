@@ -363,3 +363,21 @@ def test_unknown_keyword_is_error() -> None:
 def test_bad_input_names_argument(call: object, name: str) -> None:
     with pytest.raises(tiltwell.TiltwellError, match=name):
         call()  # type: ignore[operator]
+
+
+@pytest.mark.parametrize(("length", "active", "handover"), [(0.05, 4, 0.5), (0.055, 4, 0.5), (0.05, 4, 0.0),
+                                                             (0.047, 6, 1.0), (0.03, 2, 0.0)],
+                         ids=["whole-tapered", "part-tapered", "whole-abrupt", "six-active", "two-active"])
+def test_row_layout_is_the_set_of_coils_ever_energised(length: float, active: int, handover: float) -> None:
+    """Brute force: on a row reaching far beyond both ends, the coils that carry current at some
+    trap position among 20001 from 0 to the length (and at the length itself) are exactly the
+    row_layout coils, at the same planes."""
+    from tiltwell.coils.array import row_layout
+
+    pitch = 0.01  # invented row
+    wide = CoilArray(count=int(round(length / pitch)) + 2 * active + 6, pitch=pitch, radius=0.008,
+                     first=-(active + 3) * pitch, active=active, handover=handover)
+    z = np.append(np.linspace(0.0, length, 20001), length)
+    carrying = np.any(trap_currents(wide, z, 2.0).currents != 0.0, axis=0)
+    count, first = row_layout(length, pitch, active, handover)
+    np.testing.assert_allclose(wide.positions[carrying], first + pitch * np.arange(count), rtol=0, atol=1e-12)

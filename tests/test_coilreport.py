@@ -31,13 +31,19 @@ from tiltwell import scenario as sc
 from tiltwell import species
 from tiltwell._base.validation import TiltwellError
 from tiltwell.cli import DEMO_SCENARIO, main
-from tiltwell.workflows.coilreport import UNITS, coil_array, coil_run, coil_summary
+from tiltwell.workflows.coilreport import UNITS, coil_array, coil_run, coil_summary, device_box
 
 # The demo's [coils] and [deceleration] numbers, typed in from src/tiltwell/data/demo.toml.
 PITCH, RADIUS, TURNS, WIDTH, HEIGHT, FILL = 0.012, 0.019, 200, 0.006, 0.010, 0.6
 ACTIVE, LIMIT, GRADIENT, LENGTH, FINAL, RISE = 6, 400.0, 250.0, 1.5, 20.0, 5e-6
-FIRST = -(ACTIVE // 2) * PITCH  # the row starts at -(active/2) pitch (the [coils] rule)
+# The row: coil j at j x PITCH for every j that carries current, i.e. comes within (active/2)
+# pitches of the trap between 0 and LENGTH: -3 < j < 1.5 / 0.012 + 3 = 128, so j = -2 ... 127.
+FIRST = -(ACTIVE // 2 - 1) * PITCH
+COUNT = len(range(-(ACTIVE // 2 - 1), round(LENGTH / PITCH) + ACTIVE // 2))  # 130
 HALF_WIDTHS = (4 * 0.8 / 250.0, 4 * 0.8 / 250.0, 2 * 0.8 / 250.0)  # the quadrupole's default trap box
+# The one trap box of every number: hx, hy scaled so the corner is at 0.99 x the bore (16 mm).
+_SCALE = 0.99 * (RADIUS - 0.5 * WIDTH) / math.hypot(HALF_WIDTHS[0], HALF_WIDTHS[1])
+BOX = (HALF_WIDTHS[0] * _SCALE, HALF_WIDTHS[1] * _SCALE, HALF_WIDTHS[2])
 MU0 = constants.mu_0
 
 from conftest import KRYPTON_SPEED_300K as V0  # the krypton carrier's terminal speed (closed form)
@@ -99,17 +105,17 @@ def printed(tmp_path_factory: pytest.TempPathFactory) -> tuple[dict[str, Any], n
 
 
 def test_the_row_covers_the_length_with_half_the_active_coils_beyond() -> None:
-    # The [coils] rule: from -(active/2) pitch to at least length + (active/2) pitch.
+    # The row: every coil that carries current (within active/2 pitches of the trap's path), none more.
     array = coil_array(sc.load(DEMO_SCENARIO))
-    assert array.count == math.ceil(LENGTH / PITCH) + ACTIVE + 1 == 132
+    assert array.count == COUNT == 130
     assert array.first == pytest.approx(FIRST, abs=1e-15)
-    assert array.positions[-1] >= LENGTH + ACTIVE // 2 * PITCH - 1e-12
+    assert array.positions[-1] == pytest.approx(LENGTH + (ACTIVE // 2 - 1) * PITCH, abs=1e-12)
     assert (array.radius, array.turns, array.width, array.height, array.max_current) == (
         RADIUS, TURNS, WIDTH, HEIGHT, LIMIT)
     # Given the deceleration instead, the length is (v0^2 - vf^2) / (2 a) = 1.855 m at 4e4 m/s^2.
     other = sc.load(DEMO_SCENARIO).replace("deceleration", length=None, deceleration=4e4)
-    length = (V0**2 - FINAL**2) / (2 * 4e4)
-    assert coil_array(other).count == math.ceil(length / PITCH) + ACTIVE + 1
+    length = (V0**2 - FINAL**2) / (2 * 4e4)  # not a whole number of pitches: j from -2 to floor(L/p) + 3
+    assert coil_array(other).count == len(range(-2, math.floor(length / PITCH) + 4))
 
 
 @pytest.mark.slow
@@ -189,7 +195,7 @@ def brute_force_axis(z0: float) -> tuple[float, float, float, float]:
     decelerating frame, on a 10001-point axis cut of the trap box around z0."""
     oh = species("OH")
     coils, amps = minimum_norm(z0)
-    z = np.linspace(z0 - HALF_WIDTHS[2], z0 + HALF_WIDTHS[2], 10001)
+    z = np.linspace(z0 - BOX[2], z0 + BOX[2], 10001)
     b = axis_response(z, coils)[0] @ amps
     u = oh.moment * np.abs(b) - oh.mass * DECELERATION * z  # linear Zeeman (OH, catalogue)
     middle = z.size // 2  # z0, where the field zero was put
@@ -216,7 +222,7 @@ def brute_force_radial(z0: float, z_bottom: float, cap: float) -> float:
         magpylib.current.Circle(current=float(i * t), diameter=2 * r, position=(0.0, 0.0, FIRST + PITCH * k + dz))
         for k, i in zip(coils, amps) for r, dz, t in grid
     ])
-    x = np.linspace(0.0, HALF_WIDTHS[0], 2001)
+    x = np.linspace(0.0, BOX[0], 2001)
     points = np.column_stack([x, np.zeros_like(x), np.full_like(x, z_bottom)])
     u = oh.moment * np.linalg.norm(loops.getB(points), axis=1) - oh.mass * DECELERATION * z_bottom
     energy = min(cap, u.max())
@@ -230,7 +236,7 @@ def brute_force_radial(z0: float, z_bottom: float, cap: float) -> float:
 def test_phase_scan_against_brute_force_cuts(printed: tuple[dict[str, Any], np.ndarray, np.ndarray]) -> None:
     summary, _, _ = printed
     phases = summary["phases"]
-    reference = FIRST + PITCH * ((132 - 1) // 2)  # the scan starts at the middle coil (moving_trap_phases)
+    reference = FIRST + PITCH * ((COUNT - 1) // 2)  # the scan starts at the middle coil (moving_trap_phases)
     rows = []
     for k in range(phases):
         z0 = reference + k * PITCH / phases
@@ -258,7 +264,7 @@ def test_pulse_durations_from_the_kinematics(printed: tuple[dict[str, Any], np.n
     def time_at(z: np.ndarray) -> np.ndarray:
         return (V0 - np.sqrt(np.maximum(V0**2 - 2 * DECELERATION * z, 0.0))) / DECELERATION
 
-    planes = FIRST + PITCH * np.arange(132)
+    planes = FIRST + PITCH * np.arange(COUNT)
     start = np.clip(planes - ACTIVE // 2 * PITCH, 0.0, LENGTH)
     end = np.clip(planes + ACTIVE // 2 * PITCH, 0.0, LENGTH)
     durations = (time_at(end) - time_at(start))[end > start]
@@ -350,7 +356,7 @@ def test_every_number_has_a_unit_and_the_caution(printed: tuple[dict[str, Any], 
     numbers = [key for key, value in summary.items() if isinstance(value, (int, float)) and key != "units"]
     assert numbers and all(summary["units"][key] == UNITS[key] for key in numbers)
     assert "electrical-safety" in summary["caution"]
-    assert summary["count"] == 132 and summary["pitch"] == PITCH
+    assert summary["count"] == COUNT and summary["pitch"] == PITCH
 
 
 def test_needs_a_coils_section_and_a_sensible_plan_step() -> None:
@@ -374,15 +380,22 @@ def test_a_coil_trap_needs_its_own_gradient(tmp_path: Path) -> None:
     assert run.gradient == 150.0 and np.all(run.plan.gradient <= 150.0 * (1 + 1e-9))
 
 
-def test_the_bore_must_clear_the_trap_box() -> None:
-    """Checked where the coils are used: the scenario still loads when a quadrupole's default
-    box (4 max_field / gradient across) outgrows the bore, as the explorer's gradient slider
-    may make it, but the coil row names the keys. Bore 19 - 3 = 16 mm against 4 x 0.8 / 150
-    = 21.3 mm."""
-    scenario = sc.load(DEMO_SCENARIO).replace("trap", gradient=150.0)
-    with pytest.raises(TiltwellError) as caught:
-        coil_array(scenario)
-    for word in ("[coils] radius - width/2 [m]", "0.0213333", "0.016", "radius = 0.019", "width = 0.006"):
-        assert word in str(caught.value)
-    with pytest.raises(TiltwellError, match="radius - width/2"):
-        coil_array(sc.load(DEMO_SCENARIO).replace("coils", width=0.015))  # bore 11.5 mm < 12.8 mm
+@pytest.mark.parametrize(("changes", "box"), [
+    ({"trap": {"gradient": 150.0}}, (4 * 0.8 / 150.0, 4 * 0.8 / 150.0, 2 * 0.8 / 150.0)),
+    ({"coils": {"width": 0.015}}, HALF_WIDTHS),
+], ids=["box-outgrows-bore", "narrow-bore"])
+def test_the_trap_box_is_fitted_into_the_bore(changes: dict[str, dict[str, float]],
+                                              box: tuple[float, float, float]) -> None:
+    """One box for every number (the rule in tiltwell.workflows.devicemodel): where the [trap]
+    box (here a quadrupole's default, 4 max_field / gradient across) outgrows the bore, hx and
+    hy shrink together until the corner sits at 0.99 x (radius - width / 2); hz stays. The row
+    itself does not depend on the box. Bores: 19 - 3 = 16 mm and 19 - 7.5 = 11.5 mm."""
+    scenario = sc.load(DEMO_SCENARIO)
+    for section, values in changes.items():
+        scenario = scenario.replace(section, **values)
+    coils = scenario.coils
+    assert coils is not None
+    hx, hy, hz = device_box(scenario, coil_array(scenario))
+    assert math.hypot(hx, hy) == pytest.approx(0.99 * (coils.radius - 0.5 * coils.width), rel=1e-12)
+    assert hx / hy == pytest.approx(box[0] / box[1], rel=1e-12) and hz == box[2]
+    assert coil_array(scenario).count == COUNT

@@ -119,7 +119,9 @@ def test_initial_numbers_equal_the_library(app: Explorer) -> None:
     # the demo stops 385.8 m/s to 20 m/s in 1.5 m: L = (v0^2 - vf^2) / (2 a) (kinematics)
     v0 = beam.velocity
     assert app.state["length"] == pytest.approx((v0**2 - 20.0**2) / (2 * a), rel=1e-12)
-    assert app.state["coils"] == math.floor((1.5 - 0.006) / 0.012) + 1  # pitch 12 mm, first coil at pitch / 2
+    # the row is the coils that ever carry current: those strictly within active/2 = 3 pitches
+    # of the trap's path 0 .. L = 125 pitches of 12 mm, i.e. z_k = k pitch for k = -2 .. 127
+    assert app.state["coils"] == round(1.5 / 0.012) + 2 * (6 // 2 - 1) + 1
 
 
 @pytest.mark.parametrize("fraction", [0.1, 0.5, 0.9])

@@ -94,10 +94,12 @@ def part_of(app: Explorer) -> CoilPart:
 
 
 def row(part: CoilPart, count: int) -> CoilArray:
-    """A coil row built here from the controls (mm -> m): coil k at (k + 1/2) pitch, thin windings."""
+    """A coil row built here from the controls (mm -> m), numbered as the device row is: coil k at
+    (k - active/2 + 1) pitch (the coils within active/2 pitches of the trap's path from z = 0), thin windings."""
     c = part.controls
     pitch = c["pitch"].value * 1e-3
-    return CoilArray(count=count, pitch=pitch, radius=c["radius"].value * 1e-3, first=0.5 * pitch,
+    first = -(c["active"].value // 2 - 1) * pitch
+    return CoilArray(count=count, pitch=pitch, radius=c["radius"].value * 1e-3, first=first,
                      turns=c["turns"].value, max_current=c["max_current"].value, active=c["active"].value)
 
 
@@ -192,12 +194,12 @@ def test_currents_equal_waveforms_on_a_long_row(app: Explorer, values: dict[str,
     assert len(coils) == part.controls["active"].value + 2  # the coils carrying current over two pitches
     np.testing.assert_allclose(currents, plan.currents[:, used].T, rtol=1e-12, atol=0.0)
     np.testing.assert_allclose(positions, long_row.positions[used], rtol=1e-12)
-    # the window: the trap from (h + 1) to (h + 3) pitches, h = active / 2, times from z = v0 t - a t^2 / 2 solved
-    # by hand, t = (v0 - sqrt(v0^2 - 2 a z)) / a
+    # the window: the trap from 1/2 to 5/2 pitches (midway between coil planes), times from z = v0 t - a t^2 / 2
+    # solved by hand, t = (v0 - sqrt(v0^2 - 2 a z)) / a
     v0, a = build(scenario).beam.velocity + scenario.beam.mismatch, scenario.deceleration.deceleration
     assert a is not None
-    h, pitch = part.controls["active"].value // 2, part.controls["pitch"].value * 1e-3
-    ends = [(v0 - math.sqrt(v0**2 - 2 * a * k * pitch)) / a for k in (h + 1, h + 3)]
+    pitch = part.controls["pitch"].value * 1e-3
+    ends = [(v0 - math.sqrt(v0**2 - 2 * a * k * pitch)) / a for k in (0.5, 2.5)]
     np.testing.assert_allclose(times[[0, -1]], ends, rtol=1e-9)
     assert part.state["peak_current"] == np.max(np.abs(currents))
     assert part.readouts["peak_current"].value.startswith(f"{part.state['peak_current']:.4g} A")
@@ -317,7 +319,7 @@ def test_rescans_by_itself_after_a_change(app: Explorer) -> None:
 
 
 EXTREMES = {
-    "bore inside the box": ({"radius": "min"}, ["bore", "18.1 mm"]),
+    "bore inside the box": ({"radius": "min"}, ["bore", "15.84 mm"]),  # the one box: corner at 0.99 x the 16 mm bore
     "widest pitch, smallest bore": ({"pitch": "max", "radius": "min"}, ["bore"]),
     "odd active count": ({"active": 3}, ["active coils must be an even number", "3"]),
     "few turns, low limit, steep gradient": ({"turns": "min", "max_current": "min", "gradient": "max"}, []),
@@ -349,7 +351,8 @@ def test_extreme_settings_give_a_message_not_an_exception(app: Explorer, values:
 
 def test_a_short_device_or_no_schedule_blanks_the_currents_with_a_message(app: Explorer) -> None:
     part = part_of(app)
-    app.update(final_velocity=380.0)  # 385.8 -> 380 m/s: a few cm of device
+    # 385.8 -> 382 m/s: 30 mm of device; the row's coils j x 12 mm within 3 pitches of it, j = -2 ... 5, are 8
+    app.update(final_velocity=382.0)
     assert "fewer than the active + 3 = 9" in part.message.value
     assert len(part.sources["currents"].data["xs"]) == 0
     assert math.isnan(part.state["peak_current"]) and part.readouts["peak_current"].value == "—"

@@ -167,7 +167,7 @@ def test_coils_round_trip_and_stay_optional(tmp_path: Path) -> None:
 
 def test_describe_lists_the_coils_keys() -> None:
     text = sc.describe()
-    assert "[coils] (optional section)" in text and "ceil(length / pitch) + active + 1 coils" in text
+    assert "[coils] (optional section)" in text and "z_k = -(active/2 - 1) pitch + k pitch" in text
     for line in ("radius [m] in (0, 1]", "plan_step [s] in (0, 1] (default 2e-06)", "max_current [A]", "phases"):
         assert line in text.split("[coils]")[1]
 

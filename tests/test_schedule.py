@@ -527,3 +527,26 @@ def test_absurd_coil_count_is_refused() -> None:
     plan = constant_deceleration(400.0, 0.0, deceleration=1e-3)  # 80,000 km
     with pytest.raises(TiltwellError, match="pitch"):
         coil_timing(plan, 0.01, peak_current=100.0)
+
+
+def test_timing_of_a_counted_row_reaching_beyond_the_ends() -> None:
+    """With ``count`` the coils may lie outside [0, L] (a coil row's end coils): coil k at
+    z_k = first + k pitch is on from t(max(z_k - w, 0)) to t(min(z_k + w, L)) and is passed at
+    t(clip(z_k, 0, L)), t(z) = (v0 - sqrt(v0^2 - 2 a z)) / a (constant-deceleration
+    kinematics, written here); a coil whose window misses [0, L] is an error naming count."""
+    v0, vf, a = 300.0, 30.0, 5e4  # invented numbers
+    schedule = constant_deceleration(v0, vf, deceleration=a)
+    length, pitch, reach = (v0**2 - vf**2) / (2 * a), 0.01, 0.02
+    count = math.floor(length / pitch) + 4
+    timing = coil_timing(schedule, pitch, first_coil=-0.01, count=count, window=2.0, peak_current=100.0)
+    z = -0.01 + pitch * np.arange(count)
+
+    def t(s: np.ndarray) -> np.ndarray:
+        return (v0 - np.sqrt(np.maximum(v0**2 - 2 * a * s, 0.0))) / a
+
+    np.testing.assert_allclose(timing.positions, z, rtol=0, atol=1e-15)
+    np.testing.assert_allclose(timing.on_times, t(np.clip(z - reach, 0.0, length)), rtol=1e-12, atol=1e-18)
+    np.testing.assert_allclose(timing.off_times, t(np.clip(z + reach, 0.0, length)), rtol=1e-12)
+    np.testing.assert_allclose(timing.passing_times, t(np.clip(z, 0.0, length)), rtol=1e-12, atol=1e-18)
+    with pytest.raises(ValueError, match="count"):
+        coil_timing(schedule, pitch, first_coil=-0.03, count=count, window=2.0, peak_current=100.0)

@@ -88,7 +88,7 @@ def coils_command(arguments: argparse.Namespace) -> None:
     if check is not None:
         summary["device_check"] = _device_numbers(scenario, check, device_box(scenario, run.array))
     if csv_path is not None:
-        run.plan.to_csv(csv_path, run.times)
+        run.plan.to_csv(csv_path, run.times, run.array.positions)
     written = [] if folder is None else _coil_figures(scenario, run, scan, check, folder)
     if arguments.json:
         print(json.dumps(summary))

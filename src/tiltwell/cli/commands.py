@@ -134,13 +134,25 @@ def _print_run(summary: dict[str, object]) -> None:
     print(f"{summary['species']}: {number('initial_velocity'):.1f} -> {number('final_velocity'):.1f} m/s at "
           f"{number('deceleration'):.4g} m/s^2 over {number('length'):.3g} m in {number('duration') * 1e3:.3g} ms "
           f"(critical {number('critical_deceleration'):.4g} m/s^2)")
-    _print_acceptances(summary, 24)
-    print("  captured fraction")
-    print(f"    phase-space overlap    {number('captured_fraction_overlap'):.4g}")
-    print(f"    energetic 6-D          {number('captured_fraction_energy'):.4g} "
-          f"+- {number('captured_fraction_energy_error'):.2g}")
-    print(f"    trajectories           {number('captured_fraction_mc'):.4g} "
-          f"+- {number('captured_fraction_mc_error'):.2g}  ({int(number('mc_particles'))} particles)")
+    print(f"  trap model               {summary['trap_model']}")
+    if summary.get("bound") is False:
+        print(f"  the well vanishes above a_c = {number('critical_deceleration'):.4g} m/s^2; at a = "
+              f"{number('deceleration'):.4g} m/s^2 nothing is kept")
+    else:
+        _print_acceptances(summary, 24)
+        if "depth_worst_phase" in summary:
+            print(f"  worst phase of the row   depth {millikelvin(number('depth_worst_phase')):.4g} mK, acceptances "
+                  f"{number('longitudinal_acceptance_worst_phase') * 1e3:.4g} / "
+                  f"{number('transverse_acceptance_worst_phase') * 1e3:.4g} mm*m/s")
+        print("  captured fraction")
+        print(f"    phase-space overlap    {number('captured_fraction_overlap'):.4g}")
+        print(f"    energetic 6-D          {number('captured_fraction_energy'):.4g} "
+              f"+- {number('captured_fraction_energy_error'):.2g}")
+        if summary.get("captured_fraction_mc") is None:
+            print("    trajectories           not tracked ([simulation] track = false)")
+        else:
+            print(f"    trajectories           {number('captured_fraction_mc'):.4g} "
+                  f"+- {number('captured_fraction_mc_error'):.2g}  ({int(number('mc_particles'))} particles)")
     if "coils" in summary:
         print(f"  coils                    {int(number('coils'))}")
         print(f"  {summary['caution']}")

@@ -39,6 +39,7 @@ __all__ = [
     "check_on_row",
     "local_currents",
     "on_axis_response",
+    "row_layout",
     "trap_currents",
     "waveforms",
 ]
@@ -137,6 +138,38 @@ class CoilArray:
         return CoilSet(tuple(self.coil(int(k), float(values[k])) for k in carrying))
 
 
+def row_layout(length: float, pitch: float, active: int, handover: float) -> tuple[int, float]:
+    """Count and first position [m] of the coils that a trap zero moving from z = 0 to
+    ``length`` [m] energises, on a row of ``pitch`` [m] with ``active`` coils carrying
+    current and a ``handover`` [pitches] (see :class:`CoilArray`).
+
+    Returns ``(count, first)``: coil k at z_k = first + k pitch with first = -(active/2 - 1)
+    pitch. On such a row the window of :func:`trap_currents` at z_trap in [0, length] is
+    coils floor(z_trap / pitch) ... + active - 1, so coil k carries current exactly while
+    |z_trap - z_k| < D = (active / 2) pitch, both for an abrupt and a tapered hand-over
+    (a window coil at distance D has weight 0). The count is the number of coils with
+    z_k in (-D, length + D): floor(length / pitch) + active, less one when the hand-over is
+    tapered (``handover > 0`` and ``active > 2``) and length / pitch is a whole number n,
+    where the coil at length + D would be reached only with weight 0. Every coil of the
+    row carries current at some point, none further out ever would.
+
+    >>> row_layout(0.05, 0.01, 4, 0.5)
+    (8, -0.01)
+    >>> row_layout(0.055, 0.01, 4, 0.5)
+    (9, -0.01)
+    """
+    spacing = as_scalar(pitch, "pitch", "m", low=0.0, low_open=True)
+    distance = as_scalar(length, "length", "m", low=0.0, low_open=True)
+    count = as_integer(active, "active", 2)
+    if count % 2:
+        raise TiltwellError(f"active must be an even integer >= 2; got {count!r}")
+    weighted = as_scalar(handover, "handover", "pitches", low=0.0) > 0.0 and count > 2
+    steps = distance / spacing
+    whole = math.floor(steps * (1.0 + 1e-12))
+    exact = abs(steps - round(steps)) <= 1e-9 * max(steps, 1.0)
+    return whole + count - (1 if weighted and exact else 0), -(count // 2 - 1) * spacing
+
+
 def on_axis_response(array: CoilArray, z: ArrayLike) -> tuple[FloatArray, FloatArray]:
     """On-axis field and its slope per ampere of every coil of ``array``.
 
@@ -194,7 +227,7 @@ class CurrentPlan:
     gradient: FloatArray
     limited: NDArray[np.bool_]
 
-    def to_csv(self, path: str | os.PathLike[str], times: ArrayLike) -> None:
+    def to_csv(self, path: str | os.PathLike[str], times: ArrayLike, positions: ArrayLike | None = None) -> None:
         """Write the waveforms to ``path`` as CSV, atomically (the old file survives errors).
 
         Parameters
@@ -203,24 +236,34 @@ class CurrentPlan:
             Target file, in an existing folder.
         times : array_like, shape (M,)
             Time [s] of each row (one per trap position).
+        positions : array_like, shape (count,), optional
+            The coil planes z_k [m] (:attr:`CoilArray.positions`), evenly spaced; the title
+            line then states them as ``coil k at z = <first> m + k x <pitch> m``.
 
         Notes
         -----
         tiltwell's table layout (:func:`tiltwell._base.files.table_text`): three lines
         starting with ``#`` (a title, the units, the electrical caution), one header row
-        ``time [s],coil_<k> [A],...`` with a column for each coil that is ever active, then
-        one comma-separated row per time. ``numpy.loadtxt(path, delimiter=",", skiprows=4)``
-        reads the numbers back; ``numpy.genfromtxt(path, delimiter=",", skip_header=3,
-        names=True)`` also names the columns (``time_s``, ``coil_<k>_A``).
+        ``time [s],coil_0 [A],coil_1 [A],...`` with a column for every coil of the row
+        (k = 0 ... count - 1, the numbering of :class:`CoilArray`), then one comma-separated
+        row per time. ``numpy.loadtxt(path, delimiter=",", skiprows=4)`` reads the numbers
+        back; ``numpy.genfromtxt(path, delimiter=",", skip_header=3, names=True)`` also
+        names the columns (``time_s``, ``coil_<k>_A``).
         """
         t = as_finite_array(times, "times", "s", ndim=1)
         if t.shape != self.positions.shape:
             raise TiltwellError(f"times [s] must have shape {self.positions.shape} (one per position); got shape {t.shape}")
-        used = np.flatnonzero(np.any(self.currents != 0.0, axis=0))
-        columns = [("time", "s"), *((f"coil_{k}", "A") for k in used)]
-        rows = ((t[j], *self.currents[j, used]) for j in range(t.size))
-        write_table(path, "tiltwell moving-trap coil currents: current per turn of each coil, signed", columns, rows,
-                    caution=ELECTRICAL_CAUTION)
+        title = "tiltwell moving-trap coil currents: current per turn of each coil, signed"
+        count = self.currents.shape[1]
+        if positions is not None:
+            planes = as_finite_array(positions, "positions", "m", ndim=1)
+            if planes.shape != (count,):
+                raise TiltwellError(f"positions [m] must have shape ({count},) (one per coil); got shape {planes.shape}")
+            step = float(planes[1] - planes[0]) if count > 1 else 0.0
+            title += f"; coil k at z = {float(planes[0])!r} m + k x {step!r} m"
+        columns = [("time", "s"), *((f"coil_{k}", "A") for k in range(count))]
+        rows = ((t[j], *self.currents[j]) for j in range(t.size))
+        write_table(path, title, columns, rows, caution=ELECTRICAL_CAUTION)
 
 
 def check_coil_array(array: object) -> None:

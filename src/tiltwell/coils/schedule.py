@@ -17,7 +17,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .._base.display import html_table
-from .._base.validation import TiltwellError, as_finite_array, as_scalar
+from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
 from .._base.files import write_table
 from ..physics.hardware import ELECTRICAL_CAUTION
 
@@ -267,11 +267,12 @@ def coil_timing(
     pitch: float,
     *,
     first_coil: float | None = None,
+    count: int | None = None,
     window: float = 1.0,
     rise_time: float = 0.0,
     peak_current: float,
 ) -> CoilTiming:
-    """Switching windows of coils at z_k = first_coil + k pitch, k = 0, 1, ..., inside [0, length].
+    """Switching windows of coils at z_k = first_coil + k pitch.
 
     Coil k is on while the trap centre is within ``window * pitch`` of z_k, so with
     ``window`` = 1 neighbouring coils overlap. Windows are clipped to the schedule: a coil
@@ -284,7 +285,14 @@ def coil_timing(
     pitch : float
         Coil spacing [m], > 0.
     first_coil : float, optional
-        Centre of coil 0 [m], in [0, length]; default ``pitch / 2``.
+        Centre of coil 0 [m]; default ``pitch / 2``. Without ``count`` it must lie in
+        [0, length].
+    count : int, optional
+        Number of coils, >= 1. Default: every coil k with z_k in [0, length]. With a
+        count, a coil may lie outside [0, length] (a coil row's end coils, see
+        :func:`tiltwell.coils.array.row_layout`) as long as its window reaches into it;
+        the trap "passes" a coil before the start at t = 0 and one beyond the end at the
+        duration.
     window : float
         Half-width of the on-window in units of ``pitch``, > 0.
     rise_time : float
@@ -296,23 +304,33 @@ def coil_timing(
         raise TiltwellError(f"schedule must be a Schedule; got {type(schedule).__name__}")
     length = schedule.length
     spacing = as_scalar(pitch, "pitch", "m", low=0.0, low_open=True)
-    start = spacing / 2.0 if first_coil is None else as_scalar(first_coil, "first_coil", "m", low=0.0, high=length)
     half = as_scalar(window, "window", "pitch", low=0.0, low_open=True) * spacing
-    count = math.floor((length * (1.0 + _ROUNDING) - start) / spacing) + 1
-    if count < 1:
+    if count is None:
+        start = spacing / 2.0 if first_coil is None else as_scalar(first_coil, "first_coil", "m", low=0.0, high=length)
+        number = math.floor((length * (1.0 + _ROUNDING) - start) / spacing) + 1
+    else:
+        start = spacing / 2.0 if first_coil is None else as_scalar(first_coil, "first_coil", "m")
+        number = as_integer(count, "count", 1)
+    if number < 1:
         raise TiltwellError(f"pitch [m] puts no coil inside [0, {length:g}] m; got pitch={spacing!r}, first coil at {start!r} m")
-    if count > MAX_COILS:
+    if number > MAX_COILS:
         raise TiltwellError(
-            f"pitch [m] gives {count} coils over {length:g} m, more than {MAX_COILS}; got pitch={spacing!r}"
+            f"pitch [m] gives {number} coils over {length:g} m, more than {MAX_COILS}; got pitch={spacing!r}"
         )
-    positions = start + spacing * np.arange(count)
-    positions = np.minimum(positions, length)  # only rounding can push the last one past
-    on = schedule.time_at(np.maximum(positions - half, 0.0))
-    off = schedule.time_at(np.minimum(positions + half, length))
+    positions = np.asarray(start + spacing * np.arange(number), dtype=np.float64)
+    if count is None:
+        positions = np.minimum(positions, length)  # only rounding can push the last one past
+    low = np.clip(positions - half, 0.0, length)
+    high = np.clip(positions + half, 0.0, length)
+    if np.any(high <= low):
+        k = int(np.argmax(high <= low))
+        raise TiltwellError(f"count: coil {k} at {positions[k]!r} m has no window inside [0, {length:g}] m "
+                            f"(window +- {half:g} m); got count={count!r}, first_coil={start!r}")
+    on, off = schedule.time_at(low), schedule.time_at(high)
     shortest = float(np.min(off - on))
     rise = as_scalar(rise_time, "rise_time", "s", low=0.0, high=0.5 * shortest)
     amps = as_scalar(peak_current, "peak_current", "A", low=0.0, low_open=True)
-    return CoilTiming(positions, schedule.time_at(positions), on, off, amps, rise)
+    return CoilTiming(positions, schedule.time_at(np.clip(positions, 0.0, length)), on, off, amps, rise)
 
 
 def arrival_times(final: ArrayLike, release_velocity: float, distance: float) -> FloatArray:

@@ -1,16 +1,17 @@
 """What the explorer's coil-array part computes, from its settings and the main explorer's
 trap, species, deceleration and schedule; no widgets.
 
-The coil row is the device's: coil k at z_k = (k + 1/2) ``pitch`` (as in the timing
-table, :func:`tiltwell.coil_timing`), thin windings (every turn at the mean radius). Two
-library calls make the part:
+The coil row is the device's, numbered as every output numbers it: coil k at
+z_k = first + k ``pitch`` with first = -(active/2 - 1) ``pitch``
+(:func:`tiltwell.coils.array.row_layout`, as in the timing and waveform tables and
+``tiltwell coils``), thin windings (every turn at the mean radius). Two library calls make
+the part:
 
 - the currents (cheap, every change): :func:`tiltwell.coils.array.waveforms` while the trap
-  crosses two pitches, from z = (h + 1) ``pitch`` to z = (h + 3) ``pitch`` (h = ``active / 2``;
-  midway between coils, so that it passes two hand-overs, at coils h + 1 and h + 2), near
-  the start of the deceleration where the ``active`` coils around the trap are all in
-  the row; on the first ``active + 3`` coils of the row (no further coil carries current
-  there);
+  crosses two pitches at the start of the deceleration, from z = pitch / 2 to
+  z = 5 pitch / 2 (midway between coils, so that it passes two hand-overs, at the planes of
+  coils h and h + 1, h = ``active / 2``); on the first ``active + 3`` coils of the row (no
+  further coil carries current there);
 - the phase scan (about 0.05 s per phase, in the background):
   :func:`tiltwell.coils.moving.moving_trap_phases` on ``active + 1`` coils, :data:`PHASES`
   phases, in the box of the main explorer's trap.
@@ -26,8 +27,9 @@ from numpy.typing import NDArray
 
 from .model import Model, physics_scenario
 from .._base.validation import TiltwellError
-from ..coils.array import CoilArray, CurrentPlan, trap_currents, waveforms
+from ..coils.array import CoilArray, CurrentPlan, row_layout, trap_currents, waveforms
 from ..coils.moving import PhaseScan, moving_trap_phases
+from ..workflows.devicemodel import row_gradient
 from ..workflows.report import build
 from ..coils.schedule import Schedule
 from ..physics.species import Species
@@ -48,6 +50,7 @@ __all__ = [
     "inputs_of",
     "phase_array",
     "problems",
+    "row_first",
     "scan",
 ]
 
@@ -137,31 +140,36 @@ def axial_gradient(trap: Trap) -> float:
     return float(trap.source.magnitude((centre + [0.0, 0.0, h])[None, :])[0] / h)
 
 
+def row_first(settings: CoilSettings) -> float:
+    """z_0 [m] of the device row: -(active/2 - 1) pitch (:func:`tiltwell.coils.array.row_layout`)."""
+    return -(settings.active // 2 - 1) * settings.pitch
+
+
 def phase_array(settings: CoilSettings) -> CoilArray:
-    """The ``active + 1`` coils of the phase scan (thin windings, first at pitch / 2)."""
+    """The first ``active + 1`` coils of the row (thin windings), for the phase scan."""
     s = settings
-    return CoilArray(count=s.active + 1, pitch=s.pitch, radius=s.radius, first=0.5 * s.pitch, turns=s.turns,
+    return CoilArray(count=s.active + 1, pitch=s.pitch, radius=s.radius, first=row_first(s), turns=s.turns,
                      max_current=s.max_current, active=s.active)
 
 
 def current_array(settings: CoilSettings) -> CoilArray:
-    """The first ``active + 3`` coils of the row (thin windings, first at pitch / 2)."""
+    """The first ``active + 3`` coils of the row (thin windings): coil k at the z_k of every output."""
     s = settings
-    return CoilArray(count=s.active + 3, pitch=s.pitch, radius=s.radius, first=0.5 * s.pitch, turns=s.turns,
+    return CoilArray(count=s.active + 3, pitch=s.pitch, radius=s.radius, first=row_first(s), turns=s.turns,
                      max_current=s.max_current, active=s.active)
 
 
-def device_coils(length: float, pitch: float) -> int:
-    """Coils of ``pitch`` [m] at (k + 1/2) pitch within a device ``length`` [m] long (as
-    :func:`tiltwell.coil_timing` counts them)."""
-    return max(math.floor((length * (1.0 + 1e-12) - 0.5 * pitch) / pitch) + 1, 0)
+def device_coils(length: float, pitch: float, active: int) -> int:
+    """Coils of the device row of ``pitch`` [m] with ``active`` coils carrying current over
+    a ``length`` [m] (:func:`tiltwell.coils.array.row_layout`, the tapered hand-over of
+    :class:`~tiltwell.coils.array.CoilArray`'s default)."""
+    return row_layout(length, pitch, active, CoilArray.handover)[0]
 
 
 def current_window(settings: CoilSettings, schedule: Schedule) -> FloatArray:
-    """:data:`TIMES` times [s] from when the trap passes z = (h + 1) pitch to when it
-    passes z = (h + 3) pitch, h = active / 2 (:meth:`tiltwell.Schedule.time_at`)."""
-    half = settings.active // 2
-    ends = schedule.time_at(np.array([half + 1.0, half + 3.0]) * settings.pitch)
+    """:data:`TIMES` times [s] from when the trap passes z = pitch / 2 to when it passes
+    z = 5 pitch / 2 (:meth:`tiltwell.Schedule.time_at`)."""
+    ends = schedule.time_at(np.array([0.5, 2.5]) * settings.pitch)
     return np.linspace(ends[0], ends[1], TIMES)
 
 
@@ -201,8 +209,8 @@ def problems(settings: CoilSettings, inputs: Inputs) -> tuple[list[str], list[st
     if schedule is None:
         current_problems.append(f"no schedule, so no currents to draw: {inputs.why}")
     elif not common:
-        n, needed = device_coils(schedule.length, s.pitch), s.active + 3
-        if n < needed:
+        n, needed = device_coils(schedule.length, s.pitch, s.active), s.active + 3
+        if n < needed:  # fewer than active + 3 coils: the trap's path is shorter than 3 pitches
             current_problems.append(
                 f"the device is {schedule.length:.3g} m long: {n} coils of pitch {s.pitch * 1e3:.4g} mm, fewer "
                 f"than the active + 3 = {needed} the current view needs ({s.active} active coils)")
@@ -213,21 +221,23 @@ def default_settings(model: Model) -> CoilSettings:
     """The part's starting point for the main explorer's loaded scenario.
 
     With a ``[coils]`` section: its radius, turns, active coils, current limit and
-    gradient (each when given; the windings are taken as thin here). Otherwise pitch and
+    gradient (:func:`tiltwell.workflows.devicemodel.row_gradient`; the windings are taken
+    as thin here). Otherwise pitch and
     current limit from ``[deceleration]`` ``pitch`` and ``peak_current`` when given (else
     :data:`DEFAULT_PITCH`, :data:`DEFAULT_LIMIT`); the trap's axial gradient; a radius
     :data:`BORE_MARGIN` times the box corner's, rounded up to a millimetre; the fewest turns
     that keep the peak current per turn at :data:`LIMIT_USE` of the limit.
     """
     base = model.base
-    trap = build(physics_scenario(base, model.reference, model.initial_settings())).trap
+    physics = physics_scenario(base, model.reference, model.initial_settings())
     pitch = base.deceleration.pitch or DEFAULT_PITCH
     limit = base.deceleration.peak_current or DEFAULT_LIMIT
-    gradient = axial_gradient(trap)
     coils = base.coils
-    if coils is not None:
+    if coils is not None:  # the row's own gradient rule: [coils] gradient, else the [trap] quadrupole's
         return CoilSettings(pitch, coils.radius, coils.turns, coils.active, coils.max_current or limit,
-                            coils.gradient or gradient)
+                            row_gradient(physics))
+    trap = build(physics).trap
+    gradient = axial_gradient(trap)
     (x0, x1), (y0, y1), _ = trap.bounds
     radius = math.ceil(BORE_MARGIN * 0.5 * math.hypot(x1 - x0, y1 - y0) * 1e3) * 1e-3
     one_turn = CoilArray(count=DEFAULT_ACTIVE + 1, pitch=pitch, radius=radius, active=DEFAULT_ACTIVE)

@@ -4,7 +4,7 @@ coil's hardware numbers, as one JSON-ready summary.
 
 :func:`coil_array` builds the :class:`~tiltwell.coils.array.CoilArray`; :func:`coil_run` plans
 the currents at the table's times; :func:`coil_scan` follows the trap across one pitch
-(these three, :class:`CoilRun` and :func:`device_box` live in
+(these three, :func:`coil_positions`, :class:`CoilRun` and :func:`device_box` live in
 :mod:`tiltwell.workflows.coilrun` and are importable from here too); :func:`coil_summary`
 adds the hardware estimates; :func:`device_check` tracks the beam through the row.
 Everything stays in SI (the ``units`` map names each unit); the CLI shows depths in mK and
@@ -34,7 +34,16 @@ from ..physics.hardware import (
     hardware_estimate,
 )
 from ..wells.acceptance import trap_acceptance
-from .coilrun import MAX_TABLE_VALUES, CoilRun, coil_array, coil_run, coil_scan, coils_section, device_box
+from .coilrun import (
+    MAX_TABLE_VALUES,
+    CoilRun,
+    coil_array,
+    coil_positions,
+    coil_run,
+    coil_scan,
+    coils_section,
+    device_box,
+)
 from .report import build
 from .scenario import Scenario
 
@@ -43,6 +52,7 @@ __all__ = [
     "MAX_TABLE_VALUES",
     "UNITS",
     "coil_array",
+    "coil_positions",
     "coil_run",
     "coil_scan",
     "coil_summary",
@@ -59,6 +69,7 @@ UNITS: dict[str, str] = {
     "pitch": "m",
     "first": "m",
     "last": "m",
+    "positions": "m",
     "active": "1",
     "gradient": "T/m",
     "peak_current": "A",
@@ -180,7 +191,8 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan
     Returns
     -------
     dict
-        The row (``count``, ``pitch``, ``first``, ``last``, ``active``); the waveforms
+        The row (``count``, ``pitch``, ``first``, ``last``, ``positions`` = every z_k, ``active``;
+        :func:`coil_array`'s numbering, which every output shares); the waveforms
         (``peak_current`` = max |I| over the run, ``limited_fraction`` of the planned points
         where the current limit lowered the gradient, ``achieved_gradient_min`` and
         ``_mean``); the phase scan at the schedule's deceleration (depth, longitudinal and
@@ -227,6 +239,7 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan
         "pitch": array.pitch,
         "first": array.first,
         "last": float(array.positions[-1]),
+        "positions": array.positions.tolist(),
         "active": array.active,
         "gradient": run.gradient,
         "peak_current": peak,

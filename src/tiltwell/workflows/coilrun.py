@@ -1,9 +1,10 @@
 """A scenario's real coil row (its ``[coils]`` section) driven along its schedule.
 
-:func:`coil_array` builds the :class:`~tiltwell.coils.array.CoilArray` of the section;
+:func:`coil_array` builds the :class:`~tiltwell.coils.array.CoilArray` of the section
+(:func:`coil_positions` its z_k, the one numbering of every output);
 :func:`coil_run` plans every coil's current at the waveform table's times (a
 :class:`CoilRun`); :func:`coil_scan` follows the row's trap across one pitch;
-:func:`device_box` is the trap box that fits inside the bore. The summary of all this,
+:func:`device_box` is the one trap box (:func:`tiltwell.workflows.devicemodel.trap_box`). The summary of all this,
 with the hardware numbers, is :func:`tiltwell.workflows.coilreport.coil_summary` (which
 also re-exports these names). SI units; no plotting, no file output.
 """
@@ -19,11 +20,13 @@ from numpy.typing import NDArray
 from .._base.validation import TiltwellError
 from ..coils.array import CoilArray, CurrentPlan, waveforms
 from ..coils.moving import PhaseScan, moving_trap_phases
-from ..coils.schedule import MAX_COILS, Schedule
-from .report import build
-from .scenario import CoilsSection, Scenario, box_half_widths
+from ..coils.schedule import Schedule
+from .assemble import build
+from .devicemodel import row_array, row_gradient, trap_box
+from .scenario import CoilsSection, Scenario
 
-__all__ = ["CoilRun", "MAX_TABLE_VALUES", "coil_array", "coil_run", "coil_scan", "coils_section", "device_box"]
+__all__ = ["CoilRun", "MAX_TABLE_VALUES", "coil_array", "coil_positions", "coil_run", "coil_scan", "coils_section",
+           "device_box"]
 
 FloatArray = NDArray[np.float64]
 
@@ -57,38 +60,28 @@ def coil_array(scenario: Scenario, schedule: Schedule | None = None) -> CoilArra
     Raises
     ------
     TiltwellError
-        When the bore (radius - width/2) does not clear the trap box's transverse half widths,
-        or the row would need more than ``MAX_COILS`` coils.
+        When the row would need more than ``MAX_COILS`` coils. (The trap box is fitted into
+        the bore by :func:`device_box`'s one rule; it does not constrain the row.)
 
     Returns
     -------
     CoilArray
-        ``count = ceil(length / pitch) + active + 1`` coils from ``first = -(active/2) pitch``,
-        so the last one lies at or beyond ``length + (active/2) pitch`` and the trap zero,
-        running from z = 0 to z = length, always has ``active / 2`` coils on either side.
+        :func:`tiltwell.workflows.devicemodel.row_array`: the coils the trap zero, running
+        from z = 0 to z = length, energises (:func:`tiltwell.coils.array.row_layout`), coil
+        k at z_k = -(active/2 - 1) pitch + k pitch; the one numbering of every output.
         ``max_current`` is ``[coils] max_current``, else ``[deceleration] peak_current``.
     """
-    coils = coils_section(scenario)
-    bore = coils.radius - 0.5 * coils.width
-    hx, hy, _ = box_half_widths(scenario.trap)
-    if bore <= max(hx, hy):
-        raise TiltwellError(
-            f"[coils] radius - width/2 [m] (the bore) must exceed the trap box's transverse half widths "
-            f"{hx:g}, {hy:g} m ([trap] half_widths, or 4 max_field/gradient for a quadrupole); got "
-            f"{bore:g} m from radius = {coils.radius!r}, width = {coils.width!r}")
-    pitch, limit = scenario.deceleration.pitch, coils.max_current or scenario.deceleration.peak_current
-    assert pitch is not None and limit is not None  # the scenario's own checks
+    coils_section(scenario)
     length = scenario.deceleration.length
     if length is None:
         length = (build(scenario).schedule if schedule is None else schedule).length
-    count = math.ceil(length / pitch - 1e-9) + coils.active + 1
-    if count > MAX_COILS:
-        raise TiltwellError(
-            f"[deceleration] pitch [m] and length [m] need {count} coils, more than {MAX_COILS}; "
-            f"got pitch = {pitch!r}, length = {length:g}")
-    return CoilArray(count=count, pitch=pitch, radius=coils.radius, first=-0.5 * coils.active * pitch,
-                     turns=coils.turns, width=coils.width, height=coils.height, max_current=limit,
-                     active=coils.active, handover=coils.handover)
+    return row_array(scenario, length)
+
+
+def coil_positions(scenario: Scenario, schedule: Schedule | None = None) -> FloatArray:
+    """z_k [m], shape (count,), of the scenario's coil row: the positions every output
+    (timing and waveform tables, ``tiltwell coils``, figures, the explorer) uses."""
+    return coil_array(scenario, schedule).positions
 
 
 @dataclass(frozen=True, eq=False)
@@ -114,13 +107,6 @@ class CoilRun:
     plan: CurrentPlan
 
 
-def _gradient(scenario: Scenario) -> float:
-    coils = coils_section(scenario)
-    gradient = coils.gradient if coils.gradient is not None else scenario.trap.gradient
-    assert gradient is not None  # [coils] gradient is required unless the trap is a quadrupole
-    return gradient
-
-
 def coil_run(scenario: Scenario, schedule: Schedule | None = None) -> CoilRun:
     """The currents of every coil from t = 0 to the end of the deceleration, every
     ``[coils] plan_step`` seconds (:func:`tiltwell.coils.array.waveforms`)."""
@@ -135,7 +121,7 @@ def coil_run(scenario: Scenario, schedule: Schedule | None = None) -> CoilRun:
             f"{MAX_TABLE_VALUES} table values; choose plan_step >= "
             f"{duration * array.count / MAX_TABLE_VALUES:.3g} s; got {step!r}")
     times = np.append(step * np.arange(points - 1), duration)
-    gradient = _gradient(scenario)
+    gradient = row_gradient(scenario)
     parts = [waveforms(array, schedule, gradient, times[i:i + _CHUNK]) for i in range(0, times.size, _CHUNK)]
     plan = CurrentPlan(*(np.concatenate([getattr(p, name) for p in parts])
                          for name in ("positions", "currents", "gradient", "limited")))
@@ -146,17 +132,16 @@ def coil_scan(scenario: Scenario, run: CoilRun) -> PhaseScan:
     """The row's trap at ``[coils] phases`` positions across one pitch, decelerating as the
     scenario does (:func:`tiltwell.moving_trap_phases`; ``[simulation] samples`` per cut)."""
     species = build(scenario).species
-    return moving_trap_phases(run.array, run.gradient, species, box_half_widths=box_half_widths(scenario.trap),
+    return moving_trap_phases(run.array, run.gradient, species, box_half_widths=trap_box(scenario),
                               phases=coils_section(scenario).phases, deceleration=run.schedule.deceleration,
                               samples=scenario.simulation.samples)
 
 
 def device_box(scenario: Scenario, array: CoilArray) -> tuple[float, float, float]:
-    """Half widths (hx, hy, hz) [m] of the trap box, with hx and hy scaled down together
-    where needed so the box's corner stays inside 0.99 of the bore (radius - width / 2):
-    the coil field is tabulated only inside the bore, and a particle beyond it would be in
-    the winding."""
-    hx, hy, hz = box_half_widths(scenario.trap)
-    room = 0.99 * (array.radius - 0.5 * array.width)
-    scale = min(1.0, room / math.hypot(hx, hy))
-    return (hx * scale, hy * scale, hz)
+    """Half widths (hx, hy, hz) [m] of the trap box: the one box of every number,
+    :func:`tiltwell.workflows.devicemodel.trap_box` (hx and hy scaled down together where
+    needed so the corner stays inside 0.99 of the bore). ``array`` is checked only."""
+    coils_section(scenario)
+    if not isinstance(array, CoilArray):
+        raise TiltwellError(f"array must be a CoilArray; got {type(array).__name__}")
+    return trap_box(scenario)

@@ -69,11 +69,15 @@ class CoilFigureData:
         Time [s] of each row of ``plan``.
     scan : PhaseScan
         Depth and acceptances across one pitch (:func:`tiltwell.workflows.coilreport.coil_scan`).
+    positions : ndarray, shape (count,)
+        z_k [m] of every coil of the row, column k of ``plan.currents``
+        (:func:`tiltwell.workflows.coilreport.coil_positions`).
     """
 
     plan: CurrentPlan
     times: FloatArray
     scan: PhaseScan
+    positions: FloatArray
 
 
 def coil_figure_data(run: CoilRun, scan: PhaseScan) -> CoilFigureData:
@@ -87,7 +91,7 @@ def coil_figure_data(run: CoilRun, scan: PhaseScan) -> CoilFigureData:
     plan = run.plan
     rows = slice(0, max(int(np.count_nonzero(plan.positions <= CURRENT_PITCHES * run.array.pitch)), 2))
     early = CurrentPlan(plan.positions[rows], plan.currents[rows], plan.gradient[rows], plan.limited[rows])
-    return CoilFigureData(early, _frozen(run.times[rows]), scan)
+    return CoilFigureData(early, _frozen(run.times[rows]), scan, _frozen(run.array.positions))
 
 
 @dataclass(frozen=True, eq=False)
@@ -97,6 +101,8 @@ class ScenarioFigureData:
     Attributes
     ----------
     trap : Trap
+    trap_model : str
+        Which trap ``trap`` is, in words (the summary's ``trap_model``).
     deceleration : float
         The schedule's deceleration [m/s^2].
     acceptance : TrapAcceptance
@@ -128,6 +134,7 @@ class ScenarioFigureData:
     """
 
     trap: Trap
+    trap_model: str
     deceleration: float
     acceptance: TrapAcceptance
     beam: Beam
@@ -177,6 +184,6 @@ def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) ->
     arrivals = None
     if tracking is not None and sim.detector_distance is not None:
         arrivals = _frozen(estimates.arrival_times(plan.final_velocity, sim.detector_distance))
-    return ScenarioFigureData(trap=built.trap, deceleration=a, acceptance=estimates.acceptance, beam=built.beam,
+    return ScenarioFigureData(trap=built.trap, trap_model=built.trap_model, deceleration=a, acceptance=estimates.acceptance, beam=built.beam,
                               mismatch=built.mismatch, sample=sample, kept=kept, curve=curve,
                               sweep_rows=rows, coils=coils, tracking=tracking, arrivals=arrivals)

@@ -1,31 +1,36 @@
 """A whole scenario in, one summary out: the numbers a proposal needs.
 
-:func:`build` turns a :class:`~tiltwell.workflows.scenario.Scenario` into the physics objects
-(species, trap, source and beam, schedule); :func:`summarise` computes the acceptances, the
-three captured-fraction estimates, the schedule and, when the scenario gives a coil pitch
-and current, the coil timing and hardware estimates with their cautions. The CLI, the
-sweeps and the notebooks all go through these two functions.
+:func:`build` (from :mod:`tiltwell.workflows.assemble`) turns a
+:class:`~tiltwell.workflows.scenario.Scenario` into the physics objects (species, trap,
+source and beam, schedule); :func:`summarise` computes the acceptances, the three
+captured-fraction estimates, the schedule and, when the scenario gives a coil pitch and
+current, the coil count with the electrical caution. The CLI, the sweeps, the figures and
+the notebooks all go through these two functions.
+
+One device model (:mod:`tiltwell.workflows.devicemodel`): where the scenario has a
+``[coils]`` section every number comes from its coil row, the phase-averaged rigid twin,
+and the summary adds the row's worst phase across one pitch (``depth_worst_phase``,
+``longitudinal_acceptance_worst_phase``, ``transverse_acceptance_worst_phase``); else, or
+with ``[simulation] first_estimate = true``, from the ``[trap]`` section (an ideal
+quadrupole: the quick first estimate). ``trap_model`` says which, in words; ``bound`` is
+False beyond the critical deceleration, where every acceptance and fraction is 0.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
-from ..physics.beam import Beam
 from ..dynamics.capture import CaptureEstimates, capture_estimates
-from ..physics.fields import FieldSource, IdealQuadrupole, anti_helmholtz
 from ..physics.hardware import ELECTRICAL_CAUTION
-from .scenario import Scenario, box_half_widths
-from ..coils.schedule import CoilTiming, Schedule, coil_timing, constant_deceleration
-from ..physics.source import Aperture, Source, gas
-from ..physics.species import LinearZeeman, Species, species
-from ..wells.traps import Trap
+from .assemble import Built, build, timing
+from .devicemodel import model_of, phase_acceptances
+from .rowtrack import track_through_row
+from .scenario import Scenario
 
-__all__ = ["Built", "UNITS", "build", "estimate", "summarise", "timing"]
+__all__ = ["Built", "UNITS", "build", "estimate", "summarise", "timing", "worst_phase"]
 
 #: SI unit of every number in a summary.
 UNITS: dict[str, str] = {
@@ -50,95 +55,52 @@ UNITS: dict[str, str] = {
     "mismatch": "m/s",
     "arrival_time_mean": "s",
     "arrival_time_rms": "s",
+    "depth_worst_phase": "J",
+    "longitudinal_acceptance_worst_phase": "m*m/s",
+    "transverse_acceptance_worst_phase": "m*m/s",
 }
-
-@dataclass(frozen=True)
-class Built:
-    """The physics objects of a scenario."""
-
-    species: Species
-    trap: Trap
-    source: Source
-    beam: Beam
-    schedule: Schedule
-    mismatch: float
-
-
-def build(scenario: Scenario) -> Built:
-    """Species, trap, source, beam at switch-on and schedule of a scenario."""
-    particle = _species(scenario)
-    trap = Trap(_field_source(scenario), particle, _bounds(scenario))
-    b = scenario.beam
-    source = Source(
-        gas=gas(b.gas),
-        temperature=b.temperature,
-        speed_ratio=b.speed_ratio,
-        relative_spread=b.relative_spread,
-        valve_open_time=b.valve_open_time,
-        nozzle_diameter=b.nozzle_diameter,
-        nozzle_skimmer_distance=b.nozzle_skimmer_distance,
-        skimmer_diameter=b.skimmer_diameter,
-        apertures=tuple(Aperture(distance, diameter) for distance, diameter in b.apertures),
-        flight_distance=b.flight_distance,
-        mass=particle.mass,
-    )
-    beam = source.beam()
-    d = scenario.deceleration
-    start = beam.velocity + b.mismatch
-    schedule = constant_deceleration(start, d.final_velocity, deceleration=d.deceleration, length=d.length)
-    return Built(particle, trap, source, beam, schedule, b.mismatch)
-
-
-def _species(scenario: Scenario) -> Species:
-    s = scenario.species
-    if s.mass is None or s.moment is None:
-        return species(s.name)
-    return Species(s.name, s.mass, LinearZeeman(s.moment), state="custom, linear Zeeman", source="scenario file")
-
-
-def _field_source(scenario: Scenario) -> FieldSource:
-    t = scenario.trap
-    if t.kind == "quadrupole":
-        assert t.gradient is not None and t.max_field is not None
-        return IdealQuadrupole(t.gradient, t.max_field)
-    assert t.radius is not None and t.separation is not None and t.current is not None
-    return anti_helmholtz(t.radius, t.separation, t.current, turns=t.turns or 1, width=t.width or 0.0,
-                          height=t.height or 0.0)
-
-
-def _bounds(scenario: Scenario) -> tuple[tuple[float, float], ...]:
-    hx, hy, hz = box_half_widths(scenario.trap)  # a quadrupole's default: twice its truncation surface
-    return ((-hx, hx), (-hy, hy), (-hz, hz))
-
-
-def timing(scenario: Scenario, schedule: Schedule) -> CoilTiming | None:
-    """The coil timing table when the scenario gives a pitch and a peak current."""
-    d = scenario.deceleration
-    if d.pitch is None or d.peak_current is None:
-        return None
-    return coil_timing(schedule, d.pitch, peak_current=d.peak_current, rise_time=d.rise_time)
-
 
 def estimate(scenario: Scenario, built: Built | None = None, *, progress: bool = False) -> CaptureEstimates:
     """The three captured-fraction estimates of a scenario (its [simulation] settings
-    passed to :func:`tiltwell.dynamics.capture.capture_estimates`); ``built`` reuses a :func:`build`."""
+    passed to :func:`tiltwell.dynamics.capture.capture_estimates`); ``built`` reuses a :func:`build`.
+
+    With ``[simulation] track_through = "row"`` (and the coil row as the trap) the
+    trajectories go through the time-dependent row instead of its twin
+    (:func:`tiltwell.workflows.rowtrack.track_through_row`; no switch-on ramp there)."""
     built = build(scenario) if built is None else built
     sim, schedule = scenario.simulation, built.schedule
-    return capture_estimates(
+    through_row = sim.track and sim.track_through == "row" and model_of(scenario) == "row"
+    estimates = capture_estimates(
         built.trap, schedule.deceleration, built.beam, schedule.duration,
         particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
-        method=sim.method, track_particles=sim.track, rtol=sim.rtol, samples=sim.samples,
+        method=sim.method, track_particles=sim.track and not through_row, rtol=sim.rtol, samples=sim.samples,
         switch_on_time=min(sim.switch_on_time, schedule.duration), progress=progress,
     )
+    return track_through_row(scenario, built, estimates, progress=progress) if through_row else estimates
+
+
+def worst_phase(scenario: Scenario, built: Built) -> tuple[float, float, float]:
+    """Depth [J], longitudinal and transverse acceptance [m·m/s] of the row's trap at its
+    worst phase (the smallest longitudinal acceptance of ``[coils] phases`` positions
+    across one pitch), at the schedule's deceleration with ``[simulation] samples`` per cut
+    (:func:`tiltwell.workflows.devicemodel.phase_acceptances`, in the one trap box)."""
+    depth, longitudinal, transverse = phase_acceptances(scenario, built.species, built.schedule.deceleration,
+                                                        scenario.simulation.samples)
+    worst = int(np.argmin(longitudinal))
+    return float(depth[worst]), float(longitudinal[worst]), float(transverse[worst])
 
 
 def summarise(scenario: Scenario, *, progress: bool = False) -> dict[str, Any]:
-    """All numbers of a scenario as a JSON-ready dict (SI), with a ``units`` map."""
+    """All numbers of a scenario as a JSON-ready dict (SI), with a ``units`` map; the
+    ``trap_model`` and ``bound`` keys and the worst phase are described in the module notes."""
     built = build(scenario)
     sim = scenario.simulation
     schedule = built.schedule
     estimates = estimate(scenario, built, progress=progress)
     summary = _numbers(built, estimates, sim.samples)
+    if model_of(scenario) == "row":
+        (summary["depth_worst_phase"], summary["longitudinal_acceptance_worst_phase"],
+         summary["transverse_acceptance_worst_phase"]) = worst_phase(scenario, built)
     if sim.detector_distance is not None and estimates.tracking is not None:
         times = estimates.arrival_times(schedule.final_velocity, sim.detector_distance)
         arrived = times[np.isfinite(times)]
@@ -161,6 +123,8 @@ def _numbers(built: Built, estimates: CaptureEstimates, samples: int) -> dict[st
 
     return {
         "species": built.species.name,
+        "trap_model": built.trap_model,
+        "bound": bool(acceptance.longitudinal.bound),
         "longitudinal_acceptance": acceptance.longitudinal.area,
         "transverse_acceptance": acceptance.transverse.area,
         "acceptance_6d": finite(acceptance.volume),

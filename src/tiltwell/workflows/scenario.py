@@ -8,7 +8,8 @@ anti-Helmholtz coil pair) and its box; ``[beam]`` the source and flight path;
 ``[deceleration]`` the target final velocity and the deceleration or length, optionally the
 coil-array pitch and current pulse for the timing table; ``[simulation]`` sample size,
 seed and numerics; optionally ``[coils]``, the real coil row of the decelerator (winding,
-current limit, number of active coils, waveform table step), used by ``tiltwell coils``.
+current limit, number of active coils, waveform table step): where given, every number of
+the scenario comes from that row (:mod:`tiltwell.workflows.devicemodel`).
 
 Every key is declared with its :class:`~tiltwell.workflows.keys.KeySpec` (kind, unit, range,
 default), and loading converts each value through the one validation helper
@@ -121,17 +122,26 @@ class SimulationSection:
                                 1.0, default=0.0)
     detector_distance: float | None = key("number", "m", "time-of-flight detector beyond the trap centre at release",
                                           0.0, 100.0, open_low=True)
+    first_estimate: bool = key("boolean", "", "take the trap from the trap section (the ideal quadrupole: a "
+                               "quick first estimate) even where a coils section gives the coil row", default=False)
+    track_through: str = key("choice", "", "what the trajectories of a coil-row scenario go through: \"twin\", the "
+                             "row's phase-averaged rigid trap, or \"row\", the time-dependent row itself "
+                             "(lab frame; measured on the demo: 6.5e3 particles/s through the row, 2.1e4/s through the twin)",
+                             default="twin", choices=("twin", "row"))
 
 
 @dataclass(frozen=True)
 class CoilsSection:
-    """The coil row: coaxial coils at [deceleration] pitch from z = -(active/2) pitch to at
-    least length + (active/2) pitch, so ceil(length / pitch) + active + 1 coils."""
+    """The coil row: the coaxial coils at [deceleration] pitch that ever carry current while
+    the trap runs from 0 to length, i.e. z_k = -(active/2 - 1) pitch + k pitch up to
+    length + (active/2 - 1) pitch (coil k carries current while the trap is within
+    active/2 pitches of it). Where this section is given, every number comes from this row
+    (see [simulation] first_estimate)."""
 
     radius: float = key("number", "m", "mean winding radius of each coil", 0.0, 1.0, open_low=True, required=True)
     turns: int = key("integer", "", "turns per coil", 1, 1e5, required=True)
-    width: float = key("number", "m", "radial extent of a winding (the bore, radius - width/2, must clear the trap "
-                       "box)", 0.0, 1.0, open_low=True, required=True)
+    width: float = key("number", "m", "radial extent of a winding (the trap box's corner is kept inside 0.99 of the "
+                       "bore, radius - width/2)", 0.0, 1.0, open_low=True, required=True)
     height: float = key("number", "m", "axial extent of a winding (at most the pitch)", 0.0, 1.0, open_low=True,
                         required=True)
     fill_factor: float = key("number", "", "copper fraction of the winding cross-section (round wire, square packing: "
@@ -293,9 +303,8 @@ def _check_coils(s: Scenario) -> None:
     if c.height > pitch:
         raise TiltwellError(f"[coils] height [m] must be at most [deceleration] pitch = {pitch:g} m "
                             f"(neighbouring windings would overlap); got {c.height!r}")
-    # The bore against the trap box is checked where the coils are used
-    # (tiltwell.workflows.coilreport.coil_array): a quadrupole's default box follows its gradient, which
-    # the explorer varies without touching [coils].
+    # The trap box is fitted into the bore where the coils are used (tiltwell.workflows.devicemodel.trap_box):
+    # a quadrupole's default box follows its gradient, which the explorer varies without touching [coils].
 
 
 def loads(text: str) -> Scenario:

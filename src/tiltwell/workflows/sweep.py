@@ -51,7 +51,7 @@ def _point(task: tuple[Scenario, str, float]) -> dict[str, Any]:
     other = "length" if key == "deceleration" else "deceleration"
     varied = scenario.replace("deceleration", **{key: value, other: None})
     summary = summarise(varied)
-    return {name: summary.get(name) for name in COLUMNS}
+    return {**{name: summary.get(name) for name in COLUMNS}, "trap_model": summary["trap_model"]}
 
 
 def sweep(
@@ -62,7 +62,9 @@ def sweep(
     executor: Executor | None = None,
     progress: bool = False,
 ) -> list[dict[str, Any]]:
-    """Rows of :data:`COLUMNS` (SI units) for each deceleration [m/s^2] or each length [m].
+    """Rows of :data:`COLUMNS` (SI units) for each deceleration [m/s^2] or each length [m],
+    each with the summary's ``trap_model`` too (the coil row's twin table is built once per
+    process and reused, :func:`tiltwell.workflows.devicemodel.row_tables`).
 
     Give exactly one of ``decelerations`` and ``lengths`` (1-D, positive). The rows come
     back in the order of the input whatever the executor.
@@ -87,7 +89,7 @@ def sweep(
 def sweep_csv(rows: Sequence[dict[str, Any]], path: str | os.PathLike[str] | None = None) -> str:
     """The rows as CSV text in tiltwell's table layout; written atomically to ``path`` if given.
 
-    Three ``#`` lines (title, units, a note on the rows), one header row
+    Three ``#`` lines (title, units, a note on the rows naming the rows' ``trap_model``), one header row
     ``deceleration [m/s^2],length [m],...`` (:data:`COLUMNS` with their units), then one
     row per point; a value the summary does not have (e.g. the Monte-Carlo fraction when
     ``[simulation] track`` is false) is an empty cell. Read it with
@@ -97,7 +99,9 @@ def sweep_csv(rows: Sequence[dict[str, Any]], path: str | os.PathLike[str] | Non
     columns = [(name, UNITS.get(name, "1")) for name in COLUMNS]
     table = ([row.get(name) for name in COLUMNS] for row in rows)
     title = "tiltwell trade-off sweep: one row per deceleration (or length), same target final velocity"
-    note = "each row: tiltwell.workflows.report.summarise of the scenario so changed; empty cell: not computed"
+    models = sorted({str(row["trap_model"]) for row in rows if row.get("trap_model") is not None})
+    trap = f"; trap model: {', '.join(models)}" if models else ""
+    note = f"each row: tiltwell.workflows.report.summarise of the scenario so changed{trap}; empty cell: not computed"
     if path is None:
         return table_text(title, columns, table, caution=note)
     return write_table(Path(path), title, columns, table, caution=note)

@@ -1,0 +1,51 @@
+"""The Monte-Carlo estimate through the time-dependent coil row itself
+(``[simulation] track_through = "row"``), in place of its rigid twin.
+
+:func:`track_through_row` takes the overlap and energetic estimates made in the twin and
+tracks the same sample with :func:`tiltwell.track_device` in the lab frame through the
+currents the row's waveform table plans (every ``[coils] plan_step``, interpolated
+linearly between, as :func:`tiltwell.workflows.coilreport.device_check` does), lost at
+the walls of the one trap box (:func:`tiltwell.workflows.devicemodel.trap_box`). SI units.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from ..dynamics.capture import CaptureEstimates, default_time_step
+from ..dynamics.device import track_device
+from .assemble import Built
+from .coilrun import coil_run
+from .devicemodel import trap_box
+from .scenario import Scenario
+
+__all__ = ["track_through_row"]
+
+
+def track_through_row(scenario: Scenario, built: Built, estimates: CaptureEstimates, *,
+                      progress: bool = False) -> CaptureEstimates:
+    """``estimates`` (made without trajectories) with ``tracked``, ``tracked_error`` and
+    ``tracking`` from the sample tracked through the coil row.
+
+    The sample (trap frame at switch-on) starts at z + z_trap(0), vz + v_trap(0); the step
+    is ``[simulation] time_step``, else the twin's default
+    (:func:`tiltwell.dynamics.capture.default_time_step`). ``final`` comes back in the trap
+    frame, as from the twin. Without a bound well nothing is tracked and 0 is kept. The row
+    is on at full current from t = 0 (``[simulation] switch_on_time`` acts on the twin only).
+    """
+    sample = estimates.sample
+    assert sample is not None  # capture_estimates records its sample
+    if not estimates.acceptance.longitudinal.bound:
+        return replace(estimates, tracked=0.0, tracked_error=0.0)
+    schedule = built.schedule
+    run = coil_run(scenario, schedule)
+    step = scenario.simulation.time_step
+    if step is None:
+        step = default_time_step(estimates.acceptance, built.species.mass)
+    start = np.array([0.0, 0.0, float(schedule.position(0.0)), 0.0, 0.0, float(schedule.velocity(0.0))])
+    result = track_device(run.array, run.times, built.species, sample + start, schedule=schedule,
+                          gradient=run.gradient, time_step=min(step, schedule.duration), duration=schedule.duration,
+                          box_half_widths=trap_box(scenario), method=scenario.simulation.method, progress=progress)
+    return replace(estimates, tracked=result.fraction, tracked_error=result.binomial_error, tracking=result)
