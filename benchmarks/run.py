@@ -14,6 +14,7 @@ import time
 import bench_acceptance
 import bench_device
 import bench_device_model
+import bench_drive
 import bench_explorer
 import bench_fields
 import bench_report
@@ -56,7 +57,8 @@ def main() -> None:
     rows += rows_1
     checks += checks_1
     rows += field_rows()
-    for module in (bench_acceptance, bench_tracking, bench_device, bench_device_model, bench_report, bench_explorer):
+    for module in (bench_acceptance, bench_tracking, bench_device, bench_device_model, bench_drive, bench_report,
+                   bench_explorer):
         more_rows, more_checks = module.run()
         rows += more_rows
         checks += more_checks

@@ -293,10 +293,13 @@ def test_inductance_against_the_average_mutual_inductance(printed: tuple[dict[st
     k = np.sqrt(m)
     mutual = MU0 * np.sqrt(r1[:, None] * r2[None, :]) * ((2 / k - k) * ellipk(m) - 2 / k * ellipe(m))
     reference = TURNS**2 * float(w1 @ mutual @ w2)
-    assert summary["inductance"] == pytest.approx(reference, rel=0.03)
-    # Consistency with Grover's ring, L = mu0 N^2 R (ln(8 R / a) - 7/4), a = sqrt(w h / pi).
+    # The code sums filaments of the rectangular section (Grover's method): measured 7e-4 off.
+    assert summary["inductance"] == pytest.approx(reference, rel=3e-3)
+    # Grover's ring of round section with the same area, L = mu0 N^2 R (ln(8 R / a) - 7/4),
+    # a = sqrt(w h / pi), lies above it by the shape of the section: measured +1.0 %.
     a = math.sqrt(WIDTH * HEIGHT / math.pi)
-    assert summary["inductance"] == pytest.approx(MU0 * TURNS**2 * RADIUS * (math.log(8 * RADIUS / a) - 1.75), rel=1e-12)
+    ring = MU0 * TURNS**2 * RADIUS * (math.log(8 * RADIUS / a) - 1.75)
+    assert 0.005 < ring / summary["inductance"] - 1.0 < 0.02
 
 
 def test_heating_from_the_csv(printed: tuple[dict[str, Any], np.ndarray, np.ndarray]) -> None:
@@ -346,7 +349,7 @@ def test_slope_and_hand_over_against_the_inline_currents(printed: tuple[dict[str
     # (handover = 0) would step by 60 A here.
     assert np.abs(jump).max() < 1e-4 * LIMIT
     assert summary["handover_step"] < 1e-4 * LIMIT
-    assert summary["inductive_voltage"] == pytest.approx(summary["inductance"] * summary["max_slope"], rel=1e-12)
+    assert summary["slope_voltage"] == pytest.approx(summary["inductance"] * summary["max_slope"], rel=1e-12)
     assert summary["handover_voltage"] == pytest.approx(summary["inductance"] * summary["handover_step"] / RISE,
                                                         rel=1e-12)
 
@@ -399,3 +402,47 @@ def test_the_trap_box_is_fitted_into_the_bore(changes: dict[str, dict[str, float
     assert math.hypot(hx, hy) == pytest.approx(0.99 * (coils.radius - 0.5 * coils.width), rel=1e-12)
     assert hx / hy == pytest.approx(box[0] / box[1], rel=1e-12) and hz == box[2]
     assert coil_array(scenario).count == COUNT
+
+
+def test_switch_on_voltage_against_maxwell_mutual_terms(printed: tuple[dict[str, Any], np.ndarray, np.ndarray]) -> None:
+    """The whole shot's largest voltage comes at switch-on: every coil carrying current at
+    t = 0 ramps up linearly within RISE, so coil k sees (L I_k + sum_j M_kj I_j) / RISE
+    (Faraday's law for coupled circuits) plus I_k R. M_kj of two windings: Maxwell's
+    formula for coaxial loops (Smythe, from memory) over the 8 x 8 Gauss-Legendre filament
+    grids above; L from the summary (checked against Maxwell in the test above)."""
+    summary, table, indices = printed
+    start = table[0, 1:]  # I_j(0) per turn [A] of the coils in the table
+    on = np.flatnonzero(start != 0.0)
+    z = FIRST + PITCH * indices[on]
+    r1, r2 = LOOP_RADII[:, None], LOOP_RADII[None, :]
+    coupling = np.zeros((on.size, on.size))
+    for a in range(on.size):
+        for b in range(on.size):
+            if a == b:
+                coupling[a, b] = summary["inductance"]
+                continue
+            dz = z[b] - z[a] + LOOP_OFFSETS[None, :] - LOOP_OFFSETS[:, None]
+            m = 4 * r1 * r2 / ((r1 + r2) ** 2 + dz**2)
+            k = np.sqrt(m)
+            loops = MU0 * np.sqrt(r1 * r2) * ((2 / k - k) * ellipk(m) - 2 / k * ellipe(m))
+            coupling[a, b] = float(LOOP_TURNS @ loops @ LOOP_TURNS)
+    induced = np.abs(coupling @ start[on]) / RISE
+    voltage = induced + np.abs(start[on]) * summary["resistance"]
+    # Measured 2e-4 apart (the code's 16-cell self term and its own filament grid).
+    assert summary["switch_on_voltage"] == pytest.approx(voltage.max(), rel=5e-3)
+    assert summary["inductive_voltage"] >= induced.max() * (1 - 5e-3)
+    assert summary["peak_voltage"] >= summary["switch_on_voltage"]
+    assert summary["hardware"]["verdicts"][0]["quantity"] == "voltage"
+    assert summary["hardware"]["verdicts"][0]["value"] == pytest.approx(summary["peak_voltage"], rel=1e-12)
+    assert "electrical-safety" in summary["hardware"]["caution"]
+
+
+def test_limits_from_the_scenario_decide_the_verdicts(tmp_path: Path) -> None:
+    """A [limits] voltage above the row's peak passes, one below fails (the same peak)."""
+    base = sc.load(DEMO_SCENARIO)
+    loose = coil_summary(base.replace("limits", voltage=1e6))
+    tight = coil_summary(base.replace("limits", voltage=1e3))
+    by_name = {v["quantity"]: v for v in loose["hardware"]["verdicts"]}
+    assert by_name["voltage"]["passed"] and by_name["voltage"]["limit"] == 1e6
+    assert not {v["quantity"]: v for v in tight["hardware"]["verdicts"]}["voltage"]["passed"]
+    assert loose["peak_voltage"] == tight["peak_voltage"]

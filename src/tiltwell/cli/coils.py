@@ -46,10 +46,10 @@ def _print_coils(summary: dict[str, object]) -> None:
          f"{number('duration') * 1e3:.4g} ms")
     print("  one coil (hardware estimates; copper at 20 C, no cooling during a pulse)")
     line("  pulse", f"{number('pulse_duration_min') * 1e3:.3g} to {number('pulse_duration_max') * 1e3:.3g} ms")
-    line("  inductance", f"{number('inductance') * 1e3:.4g} mH (self only: the coupled neighbours add to the "
-         "voltages)")
+    line("  inductance", f"{number('inductance') * 1e3:.4g} mH (self; the neighbours' mutual terms are in the "
+         "whole-shot voltages below)")
     line("  resistance", f"{number('resistance'):.4g} Ohm")
-    line("  L dI/dt", f"{number('inductive_voltage') / 1e3:.4g} kV at the steepest slope "
+    line("  L dI/dt", f"{number('slope_voltage') / 1e3:.4g} kV at the steepest slope "
          f"{number('max_slope'):.3g} A/s")
     step = number('handover_step')
     if step == 0.0:
@@ -62,6 +62,19 @@ def _print_coils(summary: dict[str, object]) -> None:
     line("  I^2 t (hottest coil)", f"{number('current_squared_time'):.4g} A^2 s: +{number('temperature_rise'):.3g} K "
          f"(bound at peak current: +{number('temperature_rise_bound'):.3g} K)")
     line("  stored energy", f"{number('stored_energy'):.4g} J at the peak current")
+    hardware = summary["hardware"]
+    assert isinstance(hardware, dict)  # coil_summary's nested dict of the row's loads
+    print("  the whole shot, every coil (switch-on and switch-off within the rise time, mutual terms included)")
+    line("  largest voltage", f"{number('peak_voltage') / 1e3:.4g} kV (induced {number('inductive_voltage') / 1e3:.4g} "
+         f"kV; at switch-on {number('switch_on_voltage') / 1e3:.4g} kV, at switch-off "
+         f"{number('switch_off_voltage') / 1e3:.4g} kV)")
+    for verdict in hardware["verdicts"]:
+        state = "pass" if verdict["passed"] else "FAIL"
+        line(f"  {verdict['quantity'].replace('_', ' ')}",
+             f"{verdict['value']:.4g} {verdict['unit']} against {verdict['limit']:.4g} ([limits]): {state}")
+        if verdict["advice"]:
+            print(f"      {verdict['advice']}")
+    print(f"  {hardware['assumptions']}")
     print(f"  {summary['caution']}")
 
 

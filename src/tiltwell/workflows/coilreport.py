@@ -23,6 +23,7 @@ from numpy.typing import NDArray
 
 from .._base.validation import TiltwellError, as_integer
 from ..coils.array import trap_currents
+from ..coils.drive import DriveLoad, drive_load
 from ..coils.moving import PhaseScan
 from ..dynamics.capture import default_time_step
 from ..dynamics.compare import DeviceComparison, compare_device
@@ -48,6 +49,7 @@ from .report import build
 from .scenario import Scenario
 
 __all__ = [
+    "row_load",
     "CoilRun",
     "MAX_TABLE_VALUES",
     "UNITS",
@@ -95,7 +97,12 @@ UNITS: dict[str, str] = {
     "inductance": "H",
     "resistance": "Ohm",
     "max_slope": "A/s",
+    "slope_voltage": "V",
     "inductive_voltage": "V",
+    "peak_voltage": "V",
+    "switch_on_voltage": "V",
+    "switch_off_voltage": "V",
+    "hardware_passed": "1",
     "handover_step": "A",
     "rise_time": "s",
     "handover_voltage": "V",
@@ -199,10 +206,15 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan
         transverse acceptance, worst and mean over ``[coils] phases`` positions across one
         pitch, ``ripple`` = peak-to-peak depth over its mean, ``zero_offset_max``); and one
         coil's hardware numbers: ``pulse_duration_max``/``_min`` (first to last point with
-        current, to within one plan_step), ``inductance`` and ``resistance``
-        (:func:`tiltwell.hardware_estimate`, a ring whose round cross-section has the
-        winding's area), ``max_slope`` (steepest |dI/dt| = |dI/dz| v between hand-overs) and
-        ``inductive_voltage`` = L times it, ``handover_step`` (largest jump of a coil's
+        current, to within one plan_step), ``inductance`` (the wound coil's self-inductance by filaments, :func:`tiltwell.drive_load`)
+        and ``resistance`` (:func:`tiltwell.hardware_estimate`), ``max_slope`` (steepest
+        |dI/dt| = |dI/dz| v between hand-overs) and ``slope_voltage`` = L times it; over the
+        whole shot, switch-on and switch-off within ``[deceleration] rise_time`` included and
+        the neighbours' mutual terms summed: ``inductive_voltage`` (largest L dI/dt + sum
+        M dI/dt of any coil), ``peak_voltage`` (with I R), ``switch_on_voltage`` and
+        ``switch_off_voltage``; ``hardware`` (every coil's loads, the hottest and most
+        stressed coil and a verdict per quantity against ``[limits]``, with its units and
+        the caution) and ``hardware_passed``; ``handover_step`` (largest jump of a coil's
         current where the active coils change, from the currents just before and after)
         and ``handover_voltage`` = L step / ``[deceleration] rise_time`` (None when that is
         0), ``current_squared_time``
@@ -212,8 +224,8 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan
 
     Notes
     -----
-    The voltages use the self-inductance only; the mutual inductance of the neighbouring,
-    simultaneously switched coils adds to them. Copper at 20 °C, no cooling during a pulse.
+    ``slope_voltage`` and ``handover_voltage`` use the self-inductance only; the whole-shot
+    voltages of ``hardware`` add the mutual terms. Copper at 20 °C, no cooling during a pulse.
     """
     coils = coils_section(scenario)
     equivalent = math.sqrt(coils.width * coils.height / math.pi)  # round section of the same area
@@ -232,7 +244,8 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan
     estimate = hardware_estimate(peak, longest, wire_area, turns=coils.turns, coil_radius=coils.radius,
                                  rise_time=min(rise if rise > 0.0 else coils.plan_step, 0.5 * longest),
                                  winding_radius=equivalent)
-    inductance = estimate.inductance
+    load = row_load(scenario, run)
+    inductance = load.inductance
     per_action = COPPER_RESISTIVITY / (wire_area**2 * COPPER_DENSITY * COPPER_SPECIFIC_HEAT)  # K per A^2 s
     summary: dict[str, Any] = {
         "count": array.count,
@@ -257,21 +270,40 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan
         "inductance": inductance,
         "resistance": estimate.resistance,
         "max_slope": slope,
-        "inductive_voltage": inductance * slope,
+        "slope_voltage": inductance * slope,
+        "inductive_voltage": float(load.induced_voltage.max()),
+        "peak_voltage": float(load.peak_voltage.max()),
+        "switch_on_voltage": float(load.switch_on_voltage.max()),
+        "switch_off_voltage": float(load.switch_off_voltage.max()),
         "handover_step": step,
         "rise_time": rise,
         "handover_voltage": inductance * step / rise if rise > 0.0 else None,
         "current_squared_time": float(action.max()),
         "temperature_rise": float(action.max()) * per_action,
         "temperature_rise_bound": estimate.temperature_rise,
-        "stored_energy": estimate.stored_energy,
+        "stored_energy": 0.5 * inductance * peak**2,
+        "hardware_passed": load.passed,
         "caution": ELECTRICAL_CAUTION,
     }
     for key, value in summary.items():  # JSON has no NaN: an unbound phase gives None
         if isinstance(value, float) and not math.isfinite(value):
             summary[key] = None
     summary["units"] = {key: UNITS[key] for key in summary if key in UNITS}
+    summary["hardware"] = load.to_dict()  # every coil's loads against [limits], with its own units map
     return summary
+
+
+def row_load(scenario: Scenario, run: CoilRun | None = None) -> DriveLoad:
+    """Voltages, heating and forces of every coil of the scenario's row over one shot
+    (:func:`tiltwell.drive_load`), switch-on and switch-off included as linear ramps of
+    ``[deceleration] rise_time`` (``[coils] plan_step`` where that is 0), judged against
+    ``[limits]``, at ``[coils] repetition_rate`` with ``[coils] heat_transfer``."""
+    coils = coils_section(scenario)
+    run = coil_run(scenario) if run is None else run
+    rise = scenario.deceleration.rise_time
+    return drive_load(run.array, run.times, run.plan.currents, rise_time=rise if rise > 0.0 else coils.plan_step,
+                      fill_factor=coils.fill_factor, repetition_rate=coils.repetition_rate,
+                      heat_transfer=coils.heat_transfer, limits=scenario.limits.hardware_limits())
 
 
 def device_check(scenario: Scenario, particles: int | None = None, *, run: CoilRun | None = None,

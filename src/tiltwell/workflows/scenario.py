@@ -34,12 +34,15 @@ import tomli_w
 
 from .._base.files import atomic_write_text
 from .._base.validation import TiltwellError
+from ..coils.drive import DEFAULT_HEAT_TRANSFER, DEFAULT_REPETITION_RATE
+from ..physics.limits import HardwareLimits
 from .keys import key, spec_of
 
 __all__ = [
     "BeamSection",
     "CoilsSection",
     "DecelerationSection",
+    "LimitsSection",
     "Scenario",
     "SimulationSection",
     "SpeciesSection",
@@ -156,6 +159,40 @@ class CoilsSection:
     plan_step: float = key("number", "s", "time between the points of the current waveform table", 0.0, 1.0,
                            default=2e-6, open_low=True)
     phases: int = key("integer", "", "trap positions across one pitch in the phase scan", 1, 1000, default=16)
+    repetition_rate: float = key("number", "Hz", "shots per second, for the average power and the steady temperature "
+                                 "rise", 0.0, 1e4, default=DEFAULT_REPETITION_RATE, open_low=True)
+    heat_transfer: float = key("number", "W/(m^2 K)", "cooling of the winding's outer surface to a sink at room "
+                               "temperature (default: common practice, no source)", 0.0, 1e7,
+                               default=DEFAULT_HEAT_TRANSFER, open_low=True)
+
+
+_LIMITS = HardwareLimits()  # the defaults, each marked common practice, no source (tiltwell.physics.limits)
+
+
+@dataclass(frozen=True)
+class LimitsSection:
+    """What the coil row's hardware must stay within; each verdict of ``tiltwell coils`` is
+    judged against these. Defaults: common practice, no source — set your own driver's and
+    coil's ratings."""
+
+    voltage: float = key("number", "V", "largest voltage the driver may see across one coil, switching included",
+                         0.0, 1e7, default=_LIMITS.voltage, open_low=True)
+    current: float = key("number", "A", "largest current per turn the driver can give", 0.0, 1e7,
+                         default=_LIMITS.current, open_low=True)
+    current_density: float = key("number", "A/m^2", "largest current density in the wire", 0.0, 1e12,
+                                 default=_LIMITS.current_density, open_low=True)
+    temperature_rise: float = key("number", "K", "largest temperature rise of a coil in one shot", 0.0, 1e4,
+                                  default=_LIMITS.temperature_rise, open_low=True)
+    steady_temperature_rise: float = key("number", "K", "largest steady temperature rise at the repetition rate",
+                                         0.0, 1e4, default=_LIMITS.steady_temperature_rise, open_low=True)
+    hoop_stress: float = key("number", "Pa", "largest hoop stress in a winding", 0.0, 1e11,
+                             default=_LIMITS.hoop_stress, open_low=True)
+    axial_force: float = key("number", "N", "largest axial force on a coil", 0.0, 1e9,
+                             default=_LIMITS.axial_force, open_low=True)
+
+    def hardware_limits(self) -> HardwareLimits:
+        """These limits as :class:`tiltwell.HardwareLimits`."""
+        return HardwareLimits(**{item.name: getattr(self, item.name) for item in dataclasses.fields(self)})
 
 
 _SECTIONS: dict[str, type] = {
@@ -165,13 +202,15 @@ _SECTIONS: dict[str, type] = {
     "deceleration": DecelerationSection,
     "simulation": SimulationSection,
     "coils": CoilsSection,
+    "limits": LimitsSection,
 }
 
 #: Sections that may be left out, and what they default to.
-_OPTIONAL: dict[str, Any] = {"simulation": {}, "coils": None}
+_OPTIONAL: dict[str, Any] = {"simulation": {}, "coils": None, "limits": {}}
 
 #: What :func:`describe` says about a section besides its keys.
-_NOTES: dict[str, str] = {"coils": " ".join(str(CoilsSection.__doc__).split())}
+_NOTES: dict[str, str] = {"coils": " ".join(str(CoilsSection.__doc__).split()),
+                         "limits": " ".join(str(LimitsSection.__doc__).split())}
 
 
 @dataclass(frozen=True)
@@ -184,6 +223,7 @@ class Scenario:
     deceleration: DecelerationSection
     simulation: SimulationSection = SimulationSection()
     coils: CoilsSection | None = None
+    limits: LimitsSection = LimitsSection()
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
         """Plain nested dict of the given values (None omitted, tuples as lists), as written
