@@ -8,28 +8,14 @@ table of 10,000 times over a 0.5 m deceleration.
 
 from __future__ import annotations
 
-import statistics
-import time
-from collections.abc import Callable
-
 import numpy as np
 
+from bench_fields import median_time
 from tiltwell import CoilArray, constant_deceleration, waveforms
 from tiltwell.coils.drive import drive_load
 
 REPEATS = 5
 TIMES = 10_000
-
-
-def median_time(call: Callable[[], object], repeats: int = REPEATS) -> float:
-    """Median wall time [s] of ``repeats`` calls, after one warm-up call."""
-    call()
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        call()
-        times.append(time.perf_counter() - start)
-    return statistics.median(times)
 
 
 #: The whole-shot loads of a row must not slow ``tiltwell coils`` down: under a second for
@@ -47,8 +33,8 @@ def run() -> tuple[list[dict[str, object]], list[str]]:
         schedule = constant_deceleration(420.0, 60.0, length=min(0.5, 0.012 * (count - 7)))
         times = np.linspace(0.0, schedule.duration, TIMES)
         currents = waveforms(array, schedule, 60.0, times).currents
-        ours = median_time(lambda: drive_load(array, times, currents, rise_time=5e-6, repetition_rate=1.0))
-        plan = median_time(lambda: waveforms(array, schedule, 60.0, times))
+        ours = median_time(lambda: drive_load(array, times, currents, rise_time=5e-6, repetition_rate=1.0), REPEATS)
+        plan = median_time(lambda: waveforms(array, schedule, 60.0, times), REPEATS)
         rows.append({"case": f"drive_load {count} coils x {TIMES} times (ref: waveforms of the same table)",
                      "tiltwell_s": ours, "reference_s": plan, "ratio": ours / plan, "target": f"<= {TARGET_S:g} s",
                      "met": ours <= TARGET_S})

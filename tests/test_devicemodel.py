@@ -20,7 +20,7 @@ import pytest
 from scipy import integrate
 
 import tiltwell as tw
-from conftest import KRYPTON_SPEED_300K as V0
+from conftest import DATA, KRYPTON_SPEED_300K as V0
 from tiltwell import scenario as sc
 from tiltwell.cli import DEMO_SCENARIO, main
 from tiltwell.coils.array import trap_currents
@@ -141,32 +141,10 @@ def _cli_json(*arguments: str) -> dict[str, Any]:
     return json.loads(stream.getvalue())
 
 
-PAIR = """
-[species]
-name = "Rb-87"
-[trap]
-kind = "coils"
-radius = 0.01
-separation = 0.012
-current = 400.0
-turns = 50
-half_widths = [0.004, 0.004, 0.01]
-[beam]
-gas = "Xe"
-temperature = 300.0
-relative_spread = 0.05
-valve_open_time = 2.0e-5
-nozzle_diameter = 5.0e-4
-nozzle_skimmer_distance = 0.1
-skimmer_diameter = 2.0e-3
-flight_distance = 0.3
-[deceleration]
-final_velocity = 10.0
-deceleration = 5000.0
-[simulation]
+PAIR = (DATA / "thin_pair.toml").read_text(encoding="utf-8") + """[simulation]
 track = false
 particles = 200
-"""  # an invented coil pair
+"""  # the invented thin coil pair, not tracked
 
 
 @pytest.mark.slow

@@ -28,35 +28,12 @@ from tiltwell.physics.hardware import ELECTRICAL_CAUTION
 from tiltwell.coils.moving import moving_trap_phases
 from tiltwell.workflows.report import build
 
+from conftest import DATA, millikelvin_of as mk  # J -> mK with scipy's k_B, independent of tiltwell
+
 MU0 = sc.mu_0  # CODATA vacuum permeability (scipy.constants)
 
 # invented thin coil pair (no real experiment): no [deceleration] pitch or peak_current
-PAIR = """
-[species]
-name = "Rb-87"
-[trap]
-kind = "coils"
-radius = 0.01
-separation = 0.012
-current = 400.0
-turns = 50
-half_widths = [0.004, 0.004, 0.01]
-[beam]
-gas = "Xe"
-temperature = 300.0
-relative_spread = 0.05
-valve_open_time = 2.0e-5
-nozzle_diameter = 5.0e-4
-nozzle_skimmer_distance = 0.1
-skimmer_diameter = 2.0e-3
-flight_distance = 0.3
-[deceleration]
-final_velocity = 10.0
-deceleration = 5000.0
-"""
-
-
-from conftest import millikelvin_of as mk  # J -> mK with scipy's k_B, independent of tiltwell
+PAIR = (DATA / "thin_pair.toml").read_text(encoding="utf-8")
 
 
 def loop_bz(current_turns: np.ndarray, radius: float, planes: np.ndarray, z: float) -> float:
