@@ -119,6 +119,34 @@ def test_default_window_is_six_coils_around_the_middle_with_the_caution(made: li
     assert drawn == [int(k) for k in used[start:start + 6]]
     caution = artist(figure, "electrical-caution")
     assert caution.get_text() == tw.ELECTRICAL_CAUTION and caution.get_wrap()  # wrapped to the figure when drawn
+    assert not caution.get_visible()  # carried for the file's metadata, drawn only when asked
+    drawn_figure = figures.current_pulses(plan, times, draw_caution=True)
+    made.append(drawn_figure)
+    assert artist(drawn_figure, "electrical-caution").get_visible()
+
+
+@pytest.mark.parametrize("suffix", ["pdf", "svg", "png"])
+def test_the_caution_goes_into_the_files_metadata(made: list[Figure], tmp_path: Path, suffix: str) -> None:
+    """Read back with general-purpose readers: PDF document info and SVG Dublin Core as
+    text, the PNG text chunk with Pillow (matplotlib's own image dependency)."""
+    times = np.linspace(0.0, SCHEDULE.duration, 41)
+    pulses = figures.current_pulses(tw.waveforms(ROW, SCHEDULE, GRADIENT, times), times)
+    other = figures.phase_scan(tw.moving_trap_phases(ROW, GRADIENT, tw.species("OH"), box_half_widths=(0.003,) * 3,
+                                                     phases=3, samples=201))
+    made += [pulses, other]
+    paths = [figures.save(figure, tmp_path / f"{name}.{suffix}", width=4.0, height=3.0, dpi=50)
+             for name, figure in (("pulses", pulses), ("other", other))]
+
+    def note(path: Path) -> str:
+        if suffix == "png":
+            from PIL import Image
+
+            with Image.open(path) as image:
+                return str(image.text.get("Description", ""))
+        return path.read_bytes().decode("latin-1")
+
+    assert tw.ELECTRICAL_CAUTION[:40] in note(paths[0])
+    assert tw.ELECTRICAL_CAUTION[:40] not in note(paths[1])
 
 
 # ---- phase scan -------------------------------------------------------------------------------

@@ -32,6 +32,7 @@ from .._base.files import atomic_write_text
 
 from .._base.validation import TiltwellError, as_scalar
 from ..wells.acceptance import trap_acceptance
+from ..physics.hardware import ELECTRICAL_CAUTION
 from ..physics.constants import ATOMIC_MASS, BOHR_MAGNETON, millikelvin
 from ..physics.fields import IdealQuadrupole
 from ..workflows.report import build, summarise, timing
@@ -207,8 +208,10 @@ def _figures(arguments: argparse.Namespace) -> None:
     scenario = scenario_module.load(arguments.file)
     formats = tuple(part.strip() for part in arguments.formats.split(","))
     for path in write_scenario_figures(scenario, arguments.out, formats=formats, width=arguments.width,
-                                       height=arguments.height, dpi=arguments.dpi):
+                                       height=arguments.height, dpi=arguments.dpi, draw_caution=arguments.draw_caution):
         print(f"wrote {path}")
+    if scenario.coils is not None:  # the coil-current figure sizes hardware
+        print(ELECTRICAL_CAUTION)
 
 
 def _coils(arguments: argparse.Namespace) -> None:

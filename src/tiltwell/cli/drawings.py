@@ -23,18 +23,21 @@ __all__ = ["write_scenario_figures"]
 
 def write_scenario_figures(scenario: Scenario, out: str | os.PathLike[str], *,
                            formats: str | Sequence[str] = ("pdf", "svg", "png"), width: float = 6.0,
-                           height: float = 4.0, dpi: float = 300, particles: int | None = None) -> list[Path]:
+                           height: float = 4.0, dpi: float = 300, particles: int | None = None,
+                           draw_caution: bool = False) -> list[Path]:
     """Compute a scenario's figure data and write every figure to the folder ``out``.
 
     The options are checked before anything is computed or created
     (:func:`tiltwell.figures.export.check_export`): ``formats`` from pdf, svg, png;
     ``width``, ``height`` [in] and ``dpi`` [1/in] as for :func:`tiltwell.figures.save`.
     ``particles`` replaces the scenario's ``[simulation] particles``. Returns the written
-    paths, figure by figure (the names of :func:`tiltwell.figures.scenario_drawings`).
+    paths, figure by figure (the names of :func:`tiltwell.figures.scenario_drawings`);
+    ``draw_caution`` draws the electrical caution on the coil-current figure (it is in the
+    files' metadata either way).
     """
     if not isinstance(scenario, Scenario):
         raise TiltwellError(f"scenario must be a Scenario (tiltwell.workflows.scenario.load); "
                             f"got {type(scenario).__name__}")
     check_export(out, formats=formats, width=width, height=height, dpi=dpi)
     data = scenario_figure_data(scenario, particles=particles)
-    return scenario_figures(data, out, formats=formats, width=width, height=height, dpi=dpi)
+    return scenario_figures(data, out, formats=formats, width=width, height=height, dpi=dpi, draw_caution=draw_caution)

@@ -66,6 +66,9 @@ def build_parser() -> argparse.ArgumentParser:
     drawing.add_argument("--width", type=float, default=6.0, help="figure width [in], default 6.0")
     drawing.add_argument("--height", type=float, default=4.0, help="figure height [in], default 4.0")
     drawing.add_argument("--dpi", type=float, default=300.0, help="resolution [1/in], default 300")
+    drawing.add_argument("--draw-caution", action="store_true",
+                         help="also draw the electrical caution on the coil-current figure (it is in the files' "
+                              "metadata and printed here either way)")
     commands.add_parser("keys", help="every scenario key with unit, range and meaning",
                         description="List every scenario key with its unit, range and meaning.")
     listing = commands.add_parser("species", help="list the species catalogue or show one species",

@@ -36,12 +36,14 @@ _RIGID: dict[str, Any] = {"color": PALETTE["teal"], "ls": "--"}
 _DEVICE: dict[str, Any] = {"color": PALETTE["blue"], "ls": "-"}
 
 
-def _caution(ax: Axes) -> None:
-    """The electrical caution in small type under the x label (gid ``electrical-caution``),
-    wrapped at draw time to the figure's width (so it fits whatever size it is saved at)."""
-    ax.annotate(ELECTRICAL_CAUTION, xy=(0.0, 0.0), xycoords=("axes fraction", ax.xaxis.label), xytext=(0.0, -4.0),
-                textcoords="offset points", ha="left", va="top", fontsize=6.0, color=PALETTE["ink"], wrap=True,
-                gid="electrical-caution")
+def _caution(ax: Axes, drawn: bool) -> None:
+    """The electrical caution (gid ``electrical-caution``): in small type under the x label,
+    wrapped at draw time to the figure's width, when ``drawn``; otherwise carried invisibly,
+    so that :func:`tiltwell.figures.save` writes it into the file's metadata either way."""
+    note = ax.annotate(ELECTRICAL_CAUTION, xy=(0.0, 0.0), xycoords=("axes fraction", ax.xaxis.label),
+                       xytext=(0.0, -4.0), textcoords="offset points", ha="left", va="top", fontsize=6.0,
+                       color=PALETTE["ink"], wrap=True, gid="electrical-caution")
+    note.set_visible(drawn)
 
 
 def _window(plan: CurrentPlan, coils: Sequence[int] | None) -> list[int]:
@@ -61,7 +63,7 @@ def _window(plan: CurrentPlan, coils: Sequence[int] | None) -> list[int]:
 
 @styled
 def current_pulses(plan: CurrentPlan, times: ArrayLike, *, coils: Sequence[int] | None = None,
-                   ax: Axes | None = None) -> Figure:
+                   draw_caution: bool = False, ax: Axes | None = None) -> Figure:
     """Current per turn of a window of coils against time, with the electrical caution.
 
     Parameters
@@ -77,8 +79,10 @@ def current_pulses(plan: CurrentPlan, times: ArrayLike, *, coils: Sequence[int] 
 
     Notes
     -----
-    The caution (:data:`tiltwell.physics.hardware.ELECTRICAL_CAUTION`, gid ``electrical-caution``)
-    is printed under the axes: the figure sizes coil currents.
+    The figure sizes coil currents, so it carries the caution
+    (:data:`tiltwell.physics.hardware.ELECTRICAL_CAUTION`, gid ``electrical-caution``):
+    :func:`tiltwell.figures.save` writes it into the file's metadata, and the command line
+    prints it; ``draw_caution=True`` also prints it under the axes.
     """
     if not isinstance(plan, CurrentPlan):
         raise TiltwellError(f"plan must be a CurrentPlan; got {type(plan).__name__}")
@@ -95,7 +99,7 @@ def current_pulses(plan: CurrentPlan, times: ArrayLike, *, coils: Sequence[int] 
     ax.set_ylabel("current per turn [A]")
     ax.set_title(f"coil currents, coils {chosen[0]} to {chosen[-1]}" if len(chosen) > 1 else f"coil {chosen[0]} current")
     add_legend(ax, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
-    _caution(ax)
+    _caution(ax, bool(draw_caution))
     return figure
 
 

@@ -16,7 +16,13 @@ from .._base.files import atomic_write_bytes
 from .._base.validation import TiltwellError, as_scalar
 from .style import style_context
 
-__all__ = ["check_export", "export_formats", "save", "write_figures"]
+__all__ = ["CAUTION_GID", "caution_of", "check_export", "export_formats", "save", "write_figures"]
+
+#: gid of the text artist by which a figure that sizes hardware carries the electrical caution.
+CAUTION_GID = "electrical-caution"
+#: The metadata field that takes the caution, by format (PDF's document info, Dublin Core in
+#: SVG, a PNG text chunk).
+_CAUTION_FIELD = {"pdf": "Subject", "svg": "Description", "png": "Description"}
 
 #: Suffix -> matplotlib format, and the metadata that would make files differ run to run.
 _FORMATS: dict[str, tuple[str, dict[str, Any]]] = {
@@ -39,7 +45,9 @@ def save(figure: Figure, path: str | os.PathLike[str], *, width: float | None = 
         Dots per inch, in (0, 2400]: the PNG's resolution and that of rasterised parts of
         PDF and SVG (dense particle clouds).
 
-    Returns the ``path``, replaced only once the whole file is written.
+    Returns the ``path``, replaced only once the whole file is written. A figure that sizes
+    hardware carries the electrical caution (:func:`caution_of`); it goes into the file's
+    metadata (PDF Subject, SVG Description, PNG Description).
     """
     if not isinstance(figure, Figure):
         raise TiltwellError(f"figure must be a matplotlib Figure; got {type(figure).__name__}")
@@ -49,6 +57,9 @@ def save(figure: Figure, path: str | os.PathLike[str], *, width: float | None = 
     if not target.parent.is_dir():
         raise TiltwellError(f"path must be in an existing folder; got {str(path)!r}")
     kind, metadata = _FORMATS[target.suffix.lower()]
+    caution = caution_of(figure)
+    if caution is not None:
+        metadata = {**metadata, _CAUTION_FIELD[kind]: caution}
     old = (float(figure.get_size_inches()[0]), float(figure.get_size_inches()[1]))
     size = (
         old[0] if width is None else as_scalar(width, "width", "in", low=0.0, high=MAX_SIZE, low_open=True),
@@ -63,6 +74,14 @@ def save(figure: Figure, path: str | os.PathLike[str], *, width: float | None = 
     finally:
         figure.set_size_inches(old)
     return atomic_write_bytes(target, buffer.getvalue())
+
+
+def caution_of(figure: Figure) -> str | None:
+    """The caution a figure carries (the text of its artist with gid :data:`CAUTION_GID`,
+    drawn or not), or None; :func:`save` writes it into the file's metadata."""
+    found = figure.findobj(lambda artist: artist.get_gid() == CAUTION_GID)
+    texts = [artist.get_text() for artist in found if hasattr(artist, "get_text")]
+    return texts[0] if texts else None
 
 
 def export_formats(formats: Any) -> tuple[str, ...]:

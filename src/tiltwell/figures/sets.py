@@ -25,17 +25,19 @@ from .well import phase_plane, potential
 __all__ = ["coil_figures", "scenario_drawings", "scenario_figures"]
 
 
-def coil_figures(data: CoilFigureData) -> dict[str, Figure]:
+def coil_figures(data: CoilFigureData, *, draw_caution: bool = False) -> dict[str, Figure]:
     """The coil row's figures by name: ``coil-currents`` (:func:`current_pulses` of the
-    stretch in ``data``) and ``coil-phases`` (:func:`phase_scan`), from
+    stretch in ``data``, carrying the electrical caution into its files' metadata, and
+    drawing it with ``draw_caution``) and ``coil-phases`` (:func:`phase_scan`), from
     :func:`tiltwell.workflows.figure_data.coil_figure_data`."""
     if not isinstance(data, CoilFigureData):
         raise TiltwellError(f"data must be a CoilFigureData (tiltwell.workflows.figure_data.coil_figure_data); "
                             f"got {type(data).__name__}")
-    return {"coil-currents": current_pulses(data.plan, data.times), "coil-phases": phase_scan(data.scan)}
+    return {"coil-currents": current_pulses(data.plan, data.times, draw_caution=draw_caution),
+            "coil-phases": phase_scan(data.scan)}
 
 
-def scenario_drawings(data: ScenarioFigureData) -> dict[str, Figure]:
+def scenario_drawings(data: ScenarioFigureData, *, draw_caution: bool = False) -> dict[str, Figure]:
     """A scenario's figures by name, from
     :func:`tiltwell.workflows.figure_data.scenario_figure_data`.
 
@@ -43,7 +45,8 @@ def scenario_drawings(data: ScenarioFigureData) -> dict[str, Figure]:
     drawn sample, kept/lost after tracking), ``acceptance`` and ``tradeoff`` (when the
     trap has a well at rest), ``coil-currents`` and ``coil-phases`` (with ``[coils]``),
     ``survival`` (when the scenario tracks) and ``time-of-flight`` (when it also has a
-    detector distance), in this order.
+    detector distance), in this order. ``draw_caution`` draws the electrical caution on the
+    coil-current figure (it is in the files' metadata either way).
     """
     if not isinstance(data, ScenarioFigureData):
         raise TiltwellError(f"data must be a ScenarioFigureData (tiltwell.workflows.figure_data."
@@ -63,7 +66,7 @@ def scenario_drawings(data: ScenarioFigureData) -> dict[str, Figure]:
     if data.sweep_rows is not None:
         figures["tradeoff"] = tradeoff_plot(data.sweep_rows, current=a)
     if data.coils is not None:
-        figures.update(coil_figures(data.coils))
+        figures.update(coil_figures(data.coils, draw_caution=draw_caution))
     if data.tracking is not None:
         figures["survival"] = survival(data.tracking)
         if data.arrivals is not None:
@@ -72,9 +75,10 @@ def scenario_drawings(data: ScenarioFigureData) -> dict[str, Figure]:
 
 
 def scenario_figures(data: ScenarioFigureData, out: str | os.PathLike[str], *, formats: Any = ("pdf", "svg", "png"),
-                     width: float = 6.0, height: float = 4.0, dpi: float = 300) -> list[Path]:
+                     width: float = 6.0, height: float = 4.0, dpi: float = 300, draw_caution: bool = False
+                     ) -> list[Path]:
     """Every figure of :func:`scenario_drawings` written to the folder ``out`` (created if
     missing) in every one of ``formats``; ``width``, ``height`` [in] and ``dpi`` [1/in] as
     for :func:`tiltwell.figures.save`. Returns the written paths, figure by figure."""
     check_export(out, formats=formats, width=width, height=height, dpi=dpi)
-    return write_figures(scenario_drawings(data), out, formats=formats, width=width, height=height, dpi=dpi)
+    return write_figures(scenario_drawings(data, draw_caution=draw_caution), out, formats=formats, width=width, height=height, dpi=dpi)
