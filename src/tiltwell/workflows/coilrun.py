@@ -22,8 +22,8 @@ from ..coils.array import CoilArray, CurrentPlan, waveforms
 from ..coils.moving import PhaseScan, moving_trap_phases
 from ..coils.schedule import Schedule
 from .assemble import build
-from .devicemodel import row_array, row_gradient, trap_box
-from .scenario import CoilsSection, Scenario
+from .devicemodel import coils_section, row_array, row_gradient, trap_box
+from .scenario import Scenario
 
 __all__ = ["CoilRun", "MAX_TABLE_VALUES", "coil_array", "coil_positions", "coil_run", "coil_scan", "coils_section",
            "device_box"]
@@ -35,15 +35,6 @@ MAX_TABLE_VALUES = 20_000_000
 
 #: Trap positions planned at once (bounds the memory of the on-axis response).
 _CHUNK = 512
-
-
-def coils_section(scenario: Scenario) -> CoilsSection:
-    """The ``[coils]`` section of ``scenario``, or an error saying it has none."""
-    if not isinstance(scenario, Scenario):
-        raise TiltwellError(f"scenario must be a Scenario; got {type(scenario).__name__}")
-    if scenario.coils is None:
-        raise TiltwellError("the scenario has no [coils] section (tiltwell keys lists its keys)")
-    return scenario.coils
 
 
 def coil_array(scenario: Scenario, schedule: Schedule | None = None) -> CoilArray:

@@ -35,11 +35,11 @@ from ..physics.species import Species
 from ..wells.acceptance import trap_acceptance
 from ..wells.traps import Trap
 from .fieldtable import TABLE_SHAPE, AxisymmetricTable, table_points
-from .scenario import Scenario, box_half_widths
+from .scenario import CoilsSection, Scenario, box_half_widths
 
 FloatArray = NDArray[np.float64]
 
-__all__ = ["BORE_FILL", "TRAP_MODELS", "RowTables", "model_of", "phase_acceptances", "row_array", "row_gradient",
+__all__ = ["BORE_FILL", "TRAP_MODELS", "RowTables", "coils_section", "model_of", "phase_acceptances", "row_array", "row_gradient",
            "row_tables", "trap_box", "trap_field", "twin_cache_info", "twin_table"]
 
 #: The ``trap_model`` of a summary, by the trap that produced its numbers.
@@ -51,6 +51,15 @@ TRAP_MODELS: dict[str, str] = {
 
 #: The trap box's corner stays inside this fraction of the bore (the field is singular on a winding).
 BORE_FILL = 0.99
+
+
+def coils_section(scenario: Scenario) -> CoilsSection:
+    """The ``[coils]`` section of ``scenario``, or an error saying it has none."""
+    if not isinstance(scenario, Scenario):
+        raise TiltwellError(f"scenario must be a Scenario; got {type(scenario).__name__}")
+    if scenario.coils is None:
+        raise TiltwellError("the scenario has no [coils] section (tiltwell keys lists its keys)")
+    return scenario.coils
 
 
 def model_of(scenario: Scenario) -> str:
@@ -77,9 +86,7 @@ def trap_box(scenario: Scenario) -> tuple[float, float, float]:
 
 def row_gradient(scenario: Scenario) -> float:
     """Wanted axial gradient of the row [T/m]: ``[coils] gradient``, else the quadrupole's."""
-    coils = scenario.coils
-    if coils is None:
-        raise TiltwellError("the scenario has no [coils] section (tiltwell keys lists its keys)")
+    coils = coils_section(scenario)
     gradient = coils.gradient if coils.gradient is not None else scenario.trap.gradient
     assert gradient is not None  # [coils] gradient is required unless the trap is a quadrupole
     return gradient
@@ -97,9 +104,7 @@ def row_array(scenario: Scenario, length: float) -> CoilArray:
     TiltwellError
         When the row would need more than ``MAX_COILS`` coils.
     """
-    coils = scenario.coils
-    if coils is None:
-        raise TiltwellError("the scenario has no [coils] section (tiltwell keys lists its keys)")
+    coils = coils_section(scenario)
     pitch, limit = scenario.deceleration.pitch, coils.max_current or scenario.deceleration.peak_current
     assert pitch is not None and limit is not None  # the scenario's own checks
     count, first = row_layout(length, pitch, coils.active, coils.handover)
@@ -140,9 +145,7 @@ def row_tables(scenario: Scenario) -> RowTables:
     species reuse it (:func:`twin_cache_info` counts the hits). Each phase's |B| is
     evaluated once at the nodes; the twin's is their mean.
     """
-    coils = scenario.coils
-    if coils is None:
-        raise TiltwellError("the scenario has no [coils] section (tiltwell keys lists its keys)")
+    coils = coils_section(scenario)
     pitch, limit = scenario.deceleration.pitch, coils.max_current or scenario.deceleration.peak_current
     assert pitch is not None and limit is not None
     return _cached_tables((coils.radius, coils.turns, coils.width, coils.height, pitch, limit, coils.active,
