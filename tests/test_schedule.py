@@ -210,6 +210,24 @@ def test_trapezoid_ramps_are_linear() -> None:
     np.testing.assert_array_equal(timing.current(outside)[k], 0.0)
 
 
+def test_an_end_window_cut_short_gives_a_triangle() -> None:
+    """Coils 10 mm apart from 19.8 mm, each on within +-10 mm: the last (109.8 mm) has its
+    window cut to the last 0.4 mm of a 100.2 mm schedule. A rise time that fits every whole
+    window is accepted and that coil's pulse is the triangle of two ramps meeting
+    mid-window, peak I (window / 2) / rise (geometry by hand); one too long for a whole
+    window is refused."""
+    schedule = constant_deceleration(100.0, 10.0, length=0.1002)
+    timing = coil_timing(schedule, 0.01, first_coil=0.0198, count=10, window=1.0, rise_time=5e-5, peak_current=100.0)
+    windows = timing.pulse_durations
+    assert windows[-1] < 2 * timing.rise_time < windows[:-1].min()
+    middle = 0.5 * (timing.on_times[-1] + timing.off_times[-1])
+    peak = timing.current(np.array([middle]))[-1, 0]
+    assert peak == pytest.approx(100.0 * 0.5 * windows[-1] / 5e-5, rel=1e-9)
+    with pytest.raises(TiltwellError, match=r"rise_time \[s\]"):
+        coil_timing(schedule, 0.01, first_coil=0.0198, count=10, window=1.0, rise_time=0.5 * windows[:-1].min() * 1.01,
+                    peak_current=100.0)
+
+
 # --- CSV export -----------------------------------------------------------------------
 
 

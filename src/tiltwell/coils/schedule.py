@@ -172,8 +172,9 @@ class CoilTiming:
     peak_current : float
         Flat-top current [A].
     rise_time : float
-        Duration of each linear ramp [s]; 0 gives rectangular pulses. The ramps lie inside
-        the window, so 2 ``rise_time`` must not exceed any window.
+        Duration of each linear ramp [s], in [0, 1]; 0 gives rectangular pulses. The ramps
+        lie inside the window; a window shorter than 2 ``rise_time`` (an end coil whose
+        window the schedule cuts short) gives a triangle peaking below ``peak_current``.
 
     Notes
     -----
@@ -199,8 +200,7 @@ class CoilTiming:
         shortest = float(np.min(self.off_times - self.on_times, initial=math.inf))
         if shortest <= 0.0:
             raise TiltwellError(f"off_times [s] must be later than on_times; shortest window {shortest!r} s")
-        rise = as_scalar(self.rise_time, "rise_time", "s", low=0.0, high=0.5 * shortest)
-        object.__setattr__(self, "rise_time", rise)
+        object.__setattr__(self, "rise_time", as_scalar(self.rise_time, "rise_time", "s", low=0.0, high=1.0))
 
     @property
     def pulse_durations(self) -> FloatArray:
@@ -296,7 +296,9 @@ def coil_timing(
     window : float
         Half-width of the on-window in units of ``pitch``, > 0.
     rise_time : float
-        Linear ramp time [s], 0 <= 2 rise_time <= the shortest window.
+        Linear ramp time [s], 0 <= 2 rise_time <= the shortest window that the schedule does
+        not cut short (the windows of end coils clipped at t = 0 or at the duration may be
+        shorter: their pulses are triangles, see :class:`CoilTiming`).
     peak_current : float
         Flat-top current [A], > 0.
     """
@@ -327,7 +329,8 @@ def coil_timing(
         raise TiltwellError(f"count: coil {k} at {positions[k]!r} m has no window inside [0, {length:g}] m "
                             f"(window +- {half:g} m); got count={count!r}, first_coil={start!r}")
     on, off = schedule.time_at(low), schedule.time_at(high)
-    shortest = float(np.min(off - on))
+    whole = (positions - half >= 0.0) & (positions + half <= length)
+    shortest = float(np.min((off - on)[whole] if np.any(whole) else off - on))
     rise = as_scalar(rise_time, "rise_time", "s", low=0.0, high=0.5 * shortest)
     amps = as_scalar(peak_current, "peak_current", "A", low=0.0, low_open=True)
     return CoilTiming(positions, schedule.time_at(np.clip(positions, 0.0, length)), on, off, amps, rise)
