@@ -44,30 +44,29 @@ def _print_coils(summary: dict[str, object]) -> None:
     line("  field zero off target", f"{number('zero_offset_max') * 1e6:.3g} um at most")
     line("waveform table", f"{int(number('plan_points'))} points every {number('plan_step') * 1e6:.4g} us over "
          f"{number('duration') * 1e3:.4g} ms")
-    print("  one coil (hardware estimates; copper at 20 C, no cooling during a pulse)")
+    print("  one coil (copper at 20 C, no cooling during a pulse)")
     line("  pulse", f"{number('pulse_duration_min') * 1e3:.3g} to {number('pulse_duration_max') * 1e3:.3g} ms")
     line("  inductance", f"{number('inductance') * 1e3:.4g} mH (self; the neighbours' mutual terms are in the "
-         "whole-shot voltages below)")
+         "voltages below)")
     line("  resistance", f"{number('resistance'):.4g} Ohm")
-    line("  L dI/dt", f"{number('slope_voltage') / 1e3:.4g} kV at the steepest slope "
-         f"{number('max_slope'):.3g} A/s")
+    line("  steepest slope", f"{number('max_slope'):.3g} A/s while the trap moves (the driver's slew rate)")
     step = number('handover_step')
     if step == 0.0:
         line("  hand-over", "smooth: each coil's current is weighted in and out ([coils] handover), no jump")
     elif summary.get("handover_voltage") is not None:
-        line("  hand-over step", f"{step:.4g} A; L dI/dt {number('handover_voltage') / 1e3:.4g} kV over the "
-             f"{number('rise_time') * 1e6:.3g} us rise time")
+        line("  hand-over step", f"{step:.4g} A; L dI/dt {number('handover_voltage') / 1e3:.4g} kV (self only) over "
+             f"the {number('rise_time') * 1e6:.3g} us rise time")
     else:
         line("  hand-over step", f"{step:.4g} A (a jump: give [deceleration] rise_time for its L dI/dt)")
     line("  I^2 t (hottest coil)", f"{number('current_squared_time'):.4g} A^2 s: +{number('temperature_rise'):.3g} K "
-         f"(bound at peak current: +{number('temperature_rise_bound'):.3g} K)")
+         f"(bound, peak current for the longest pulse: +{number('temperature_rise_bound'):.3g} K)")
     line("  stored energy", f"{number('stored_energy'):.4g} J at the peak current")
     hardware = summary["hardware"]
     assert isinstance(hardware, dict)  # coil_summary's nested dict of the row's loads
     print("  the whole shot, every coil (switch-on and switch-off within the rise time, mutual terms included)")
     line("  largest voltage", f"{number('peak_voltage') / 1e3:.4g} kV (induced {number('inductive_voltage') / 1e3:.4g} "
-         f"kV; at switch-on {number('switch_on_voltage') / 1e3:.4g} kV, at switch-off "
-         f"{number('switch_off_voltage') / 1e3:.4g} kV)")
+         f"kV; at switch-on {number('switch_on_voltage') / 1e3:.4g} kV, while running "
+         f"{number('running_voltage') / 1e3:.4g} kV, at switch-off {number('switch_off_voltage') / 1e3:.4g} kV)")
     for verdict in hardware["verdicts"]:
         state = "pass" if verdict["passed"] else "FAIL"
         line(f"  {verdict['quantity'].replace('_', ' ')}",

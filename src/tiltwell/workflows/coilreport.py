@@ -27,13 +27,7 @@ from ..coils.drive import DriveLoad, drive_load
 from ..coils.moving import PhaseScan
 from ..dynamics.capture import default_time_step
 from ..dynamics.compare import DeviceComparison, compare_device
-from ..physics.hardware import (
-    COPPER_DENSITY,
-    COPPER_RESISTIVITY,
-    COPPER_SPECIFIC_HEAT,
-    ELECTRICAL_CAUTION,
-    hardware_estimate,
-)
+from ..physics.hardware import ELECTRICAL_CAUTION
 from ..wells.acceptance import trap_acceptance
 from .coilrun import (
     MAX_TABLE_VALUES,
@@ -97,7 +91,7 @@ UNITS: dict[str, str] = {
     "inductance": "H",
     "resistance": "Ohm",
     "max_slope": "A/s",
-    "slope_voltage": "V",
+    "running_voltage": "V",
     "inductive_voltage": "V",
     "peak_voltage": "V",
     "switch_on_voltage": "V",
@@ -113,18 +107,16 @@ UNITS: dict[str, str] = {
 }
 
 
-def _pulses(run: CoilRun) -> tuple[FloatArray, FloatArray]:
-    """Pulse duration [s] and integral of I^2 dt [A^2 s] (trapezoid rule over the table) of
-    each coil that carries current."""
+def _pulse_durations(run: CoilRun) -> FloatArray:
+    """Pulse duration [s], first to last table point with current, of each coil that
+    carries current."""
     currents, times = run.plan.currents, run.times
     used = np.flatnonzero(np.any(currents != 0.0, axis=0))
     durations = np.empty(used.size)
     for j, k in enumerate(used):
         on = np.flatnonzero(currents[:, k])
         durations[j] = times[on[-1]] - times[on[0]]
-    squared = currents[:, used] ** 2
-    action = np.sum(0.5 * (squared[1:] + squared[:-1]) * np.diff(times)[:, None], axis=0)
-    return durations, action
+    return durations
 
 
 def _slope(run: CoilRun, samples: int = 4001) -> float:
@@ -205,48 +197,43 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan
         ``_mean``); the phase scan at the schedule's deceleration (depth, longitudinal and
         transverse acceptance, worst and mean over ``[coils] phases`` positions across one
         pitch, ``ripple`` = peak-to-peak depth over its mean, ``zero_offset_max``); and one
-        coil's hardware numbers: ``pulse_duration_max``/``_min`` (first to last point with
-        current, to within one plan_step), ``inductance`` (the wound coil's self-inductance by filaments, :func:`tiltwell.drive_load`)
-        and ``resistance`` (:func:`tiltwell.hardware_estimate`), ``max_slope`` (steepest
-        |dI/dt| = |dI/dz| v between hand-overs) and ``slope_voltage`` = L times it; over the
-        whole shot, switch-on and switch-off within ``[deceleration] rise_time`` included and
-        the neighbours' mutual terms summed: ``inductive_voltage`` (largest L dI/dt + sum
-        M dI/dt of any coil), ``peak_voltage`` (with I R), ``switch_on_voltage`` and
-        ``switch_off_voltage``; ``hardware`` (every coil's loads, the hottest and most
-        stressed coil and a verdict per quantity against ``[limits]``, with its units and
-        the caution) and ``hardware_passed``; ``handover_step`` (largest jump of a coil's
-        current where the active coils change, from the currents just before and after)
-        and ``handover_voltage`` = L step / ``[deceleration] rise_time`` (None when that is
-        0), ``current_squared_time``
-        (integral of I^2 dt of the hottest coil) and its adiabatic ``temperature_rise``,
-        ``temperature_rise_bound`` (the peak current for the whole longest pulse) and
-        ``stored_energy`` = L I^2 / 2.
+        coil's hardware numbers, all from the one :func:`row_load` of the run
+        (:func:`tiltwell.drive_load`): ``pulse_duration_max``/``_min`` (first to last point with
+        current, to within one plan_step), ``inductance`` (the wound coil's self-inductance by
+        filaments) and ``resistance``, ``max_slope`` (steepest |dI/dt| = |dI/dz| v of any
+        coil between hand-overs, for the driver's slew rate); over the whole shot, switch-on
+        and switch-off within ``[deceleration] rise_time`` included and the neighbours'
+        mutual terms summed: ``inductive_voltage`` (largest L dI/dt + sum M dI/dt of any
+        coil), ``peak_voltage`` (with I R), ``running_voltage`` (between the switching
+        ramps), ``switch_on_voltage`` and ``switch_off_voltage``; ``hardware`` (every coil's
+        loads, the hottest and most stressed coil and a verdict per quantity against
+        ``[limits]``, with its units and the caution) and ``hardware_passed``;
+        ``handover_step`` (largest jump of a coil's current where the active coils change,
+        from the currents just before and after) and ``handover_voltage`` = L step /
+        ``[deceleration] rise_time`` (None when that is 0; self-inductance only),
+        ``current_squared_time`` (integral of I^2 dt of the hottest coil, switching ramps
+        included) and its adiabatic ``temperature_rise``, ``temperature_rise_bound`` (the
+        peak current for the whole longest pulse, an upper bound) and ``stored_energy`` =
+        L I^2 / 2 at the peak current.
 
     Notes
     -----
-    ``slope_voltage`` and ``handover_voltage`` use the self-inductance only; the whole-shot
-    voltages of ``hardware`` add the mutual terms. Copper at 20 °C, no cooling during a pulse.
+    Copper at 20 °C with its resistivity held constant, no cooling during a pulse (the
+    assumptions of :func:`tiltwell.drive_load`, listed in ``hardware``).
     """
     coils = coils_section(scenario)
-    equivalent = math.sqrt(coils.width * coils.height / math.pi)  # round section of the same area
-    if equivalent >= coils.radius:
-        raise TiltwellError(f"[coils] width x height [m^2] must be smaller than pi radius^2 for the inductance "
-                            f"estimate; got {coils.width!r} x {coils.height!r} with radius {coils.radius!r}")
     run = coil_run(scenario) if run is None else run
     array, plan = run.array, run.plan
     scan = coil_scan(scenario, run) if scan is None else scan
-    durations, action = _pulses(run)
+    durations = _pulse_durations(run)
     slope, step = _slope(run), _handover_step(run)
     peak = float(np.abs(plan.currents).max())
-    wire_area = coils.fill_factor * coils.width * coils.height / coils.turns
     longest = float(durations.max())
     rise = scenario.deceleration.rise_time
-    estimate = hardware_estimate(peak, longest, wire_area, turns=coils.turns, coil_radius=coils.radius,
-                                 rise_time=min(rise if rise > 0.0 else coils.plan_step, 0.5 * longest),
-                                 winding_radius=equivalent)
     load = row_load(scenario, run)
-    inductance = load.inductance
-    per_action = COPPER_RESISTIVITY / (wire_area**2 * COPPER_DENSITY * COPPER_SPECIFIC_HEAT)  # K per A^2 s
+    inductance, hottest = load.inductance, load.hottest
+    conductor = load.settings
+    per_action = conductor["resistivity"] / (load.wire_area**2 * conductor["density"] * conductor["specific_heat"])
     summary: dict[str, Any] = {
         "count": array.count,
         "pitch": array.pitch,
@@ -266,21 +253,21 @@ def coil_summary(scenario: Scenario, run: CoilRun | None = None, scan: PhaseScan
         "plan_points": int(run.times.size),
         "pulse_duration_max": longest,
         "pulse_duration_min": float(durations.min()),
-        "wire_area": wire_area,
+        "wire_area": load.wire_area,
         "inductance": inductance,
-        "resistance": estimate.resistance,
+        "resistance": load.resistance,
         "max_slope": slope,
-        "slope_voltage": inductance * slope,
         "inductive_voltage": float(load.induced_voltage.max()),
         "peak_voltage": float(load.peak_voltage.max()),
+        "running_voltage": float(load.running_voltage.max()),
         "switch_on_voltage": float(load.switch_on_voltage.max()),
         "switch_off_voltage": float(load.switch_off_voltage.max()),
         "handover_step": step,
         "rise_time": rise,
         "handover_voltage": inductance * step / rise if rise > 0.0 else None,
-        "current_squared_time": float(action.max()),
-        "temperature_rise": float(action.max()) * per_action,
-        "temperature_rise_bound": estimate.temperature_rise,
+        "current_squared_time": float(load.current_squared_time[hottest]),
+        "temperature_rise": float(load.temperature_rise[hottest]),
+        "temperature_rise_bound": per_action * peak**2 * longest,
         "stored_energy": 0.5 * inductance * peak**2,
         "hardware_passed": load.passed,
         "caution": ELECTRICAL_CAUTION,
