@@ -4,8 +4,10 @@ trap, species, deceleration and schedule; no widgets.
 The coil row is the device's, numbered as every output numbers it: coil k at
 z_k = first + k ``pitch`` with first = -(active/2 - 1) ``pitch``
 (:func:`tiltwell.coils.array.row_layout`, as in the timing and waveform tables and
-``tiltwell coils``), thin windings (every turn at the mean radius). Two library calls make
-the part:
+``tiltwell coils``), with the scenario's winding section (``[coils]`` width, height and
+hand-over; thin windings, every turn at the mean radius, without a ``[coils]`` section),
+so that at the starting settings it is :func:`tiltwell.workflows.coilreport.coil_run`'s
+row. Three library calls make the part:
 
 - the currents (cheap, every change): :func:`tiltwell.coils.array.waveforms` while the trap
   crosses two pitches at the start of the deceleration, from z = pitch / 2 to
@@ -14,7 +16,12 @@ the part:
   further coil carries current there);
 - the phase scan (about 0.05 s per phase, in the background):
   :func:`tiltwell.coils.moving.moving_trap_phases` on ``active + 1`` coils, :data:`PHASES`
-  phases, in the box of the main explorer's trap.
+  phases, in the box of the main explorer's trap;
+- the hardware verdicts (about 1 s on the demo's 380 coils x 7,400 table times, in the
+  background): :func:`tiltwell.drive_load` of the whole row over the whole shot, at the
+  waveform table's times, as :func:`tiltwell.workflows.coilreport.row_load` does, with the
+  ``[limits]``, ``[coils]`` fill factor, repetition rate and cooling and ``[deceleration]``
+  rise time of the scenario the explorer was opened with (:class:`Hardware`).
 """
 
 from __future__ import annotations
@@ -28,7 +35,11 @@ from numpy.typing import NDArray
 from .model import Model, physics_scenario
 from .._base.validation import TiltwellError
 from ..coils.array import CoilArray, CurrentPlan, row_layout, trap_currents, waveforms
+from ..coils.drive import DriveLoad, drive_load
 from ..coils.moving import PhaseScan, moving_trap_phases
+from ..physics.limits import HardwareLimits
+from ..workflows.coilrun import MAX_TABLE_VALUES
+from ..workflows.scenario import Scenario
 from ..workflows.devicemodel import row_gradient
 from ..workflows.report import build
 from ..coils.schedule import Schedule
@@ -40,18 +51,26 @@ __all__ = [
     "SAMPLES",
     "TIMES",
     "CoilSettings",
+    "Hardware",
     "Inputs",
+    "MAX_VERDICT_VALUES",
+    "NO_HARDWARE",
     "axial_gradient",
     "current_array",
     "current_window",
     "currents",
     "default_settings",
+    "device_array",
     "device_coils",
+    "device_load",
+    "hardware_of",
+    "hardware_problems",
     "inputs_of",
     "phase_array",
     "problems",
     "row_first",
     "scan",
+    "table_times",
 ]
 
 FloatArray = NDArray[np.float64]
@@ -73,12 +92,19 @@ BORE_MARGIN = 1.25
 #: Default turns bring the peak current per turn to this fraction of the limit, or below.
 LIMIT_USE = 0.8
 MAX_TURNS = 100_000
+#: What the verdict table says without a ``[coils]`` section (no winding to judge).
+NO_HARDWARE = "— (the hardware verdicts need the scenario's [coils] section: its winding width and height)"
+#: Most table values (coils x times) the explorer judges against the limits: the cost of
+#: :func:`tiltwell.drive_load` grows as times x coils^2 (~1 s for the demo's 2.8e6 values).
+MAX_VERDICT_VALUES = min(8_000_000, MAX_TABLE_VALUES)
 
 
 @dataclass(frozen=True)
 class CoilSettings:
     """The coil part's control values, SI: ``pitch`` and ``radius`` [m], ``turns``,
-    ``active`` coils, ``max_current`` per turn [A], wanted axial ``gradient`` [T/m]."""
+    ``active`` coils, ``max_current`` per turn [A], wanted axial ``gradient`` [T/m]; and the
+    winding, fixed by the scenario (no control): radial ``width`` and axial ``height`` [m]
+    (0: thin) and the ``handover`` [pitches] of :class:`tiltwell.coils.array.CoilArray`."""
 
     pitch: float
     radius: float
@@ -86,6 +112,34 @@ class CoilSettings:
     active: int
     max_current: float
     gradient: float
+    width: float = 0.0
+    height: float = 0.0
+    handover: float = CoilArray.handover
+
+
+@dataclass(frozen=True)
+class Hardware:
+    """What the hardware verdicts take from the scenario, SI: the switching ``rise_time``
+    [s] (``[deceleration] rise_time``, else ``[coils] plan_step`` where that is 0, as
+    :func:`tiltwell.workflows.coilreport.row_load`), the table's ``plan_step`` [s], the
+    ``fill_factor``, ``repetition_rate`` [Hz], ``heat_transfer`` [W/(m^2 K)] and ``limits``."""
+
+    rise_time: float
+    plan_step: float
+    fill_factor: float
+    repetition_rate: float
+    heat_transfer: float
+    limits: HardwareLimits
+
+
+def hardware_of(scenario: Scenario | None) -> Hardware | None:
+    """:class:`Hardware` of ``scenario``'s ``[coils]``, ``[limits]`` and ``[deceleration]``
+    (None without a scenario or a ``[coils]`` section)."""
+    if scenario is None or scenario.coils is None:
+        return None
+    c, rise = scenario.coils, scenario.deceleration.rise_time
+    return Hardware(rise if rise > 0.0 else c.plan_step, c.plan_step, c.fill_factor, c.repetition_rate,
+                    c.heat_transfer, scenario.limits.hardware_limits())
 
 
 @dataclass(frozen=True, eq=False)
@@ -95,7 +149,8 @@ class Inputs:
     ``half_widths`` (hx, hy, hz) [m] is the main trap's box; ``reference`` the main
     (rigid) trap's depth [J] and longitudinal and transverse acceptances [m·m/s] at the
     same deceleration; ``schedule`` None when the main settings make none (``why`` says
-    why). ``species`` None when the main settings make no trap at all.
+    why). ``species`` None when the main settings make no trap at all; ``hardware`` None
+    without a ``[coils]`` section or a schedule.
     """
 
     species: Species | None
@@ -104,6 +159,7 @@ class Inputs:
     reference: tuple[float, float, float]
     schedule: Schedule | None
     why: str
+    hardware: Hardware | None = None
 
     @property
     def scan_key(self) -> tuple[object, ...]:
@@ -120,14 +176,14 @@ NO_INPUTS = Inputs(None, math.nan, (math.nan,) * 3, (math.nan,) * 3, None, "the 
 
 
 def inputs_of(trap: Trap | None, deceleration: float, reference: tuple[float, float, float],
-              schedule: Schedule | None, why: str) -> Inputs:
+              schedule: Schedule | None, why: str, scenario: Scenario | None = None) -> Inputs:
     """:class:`Inputs` from the main explorer's trap (None: no trap), deceleration
-    [m/s^2], reference numbers and schedule."""
+    [m/s^2], reference numbers, schedule and scenario (for :func:`hardware_of`)."""
     if trap is None:
         return NO_INPUTS
     (x0, x1), (y0, y1), (z0, z1) = trap.bounds
     halves = (0.5 * (x1 - x0), 0.5 * (y1 - y0), 0.5 * (z1 - z0))
-    return Inputs(trap.species, deceleration, halves, reference, schedule, why)
+    return Inputs(trap.species, deceleration, halves, reference, schedule, why, hardware_of(scenario))
 
 
 def axial_gradient(trap: Trap) -> float:
@@ -145,25 +201,52 @@ def row_first(settings: CoilSettings) -> float:
     return -(settings.active // 2 - 1) * settings.pitch
 
 
-def phase_array(settings: CoilSettings) -> CoilArray:
-    """The first ``active + 1`` coils of the row (thin windings), for the phase scan."""
+def _row(settings: CoilSettings, count: int) -> CoilArray:
+    """The first ``count`` coils of the device row at ``settings``."""
     s = settings
-    return CoilArray(count=s.active + 1, pitch=s.pitch, radius=s.radius, first=row_first(s), turns=s.turns,
-                     max_current=s.max_current, active=s.active)
+    return CoilArray(count=count, pitch=s.pitch, radius=s.radius, first=row_first(s), turns=s.turns, width=s.width,
+                     height=s.height, max_current=s.max_current, active=s.active, handover=s.handover)
+
+
+def phase_array(settings: CoilSettings) -> CoilArray:
+    """The first ``active + 1`` coils of the row, for the phase scan."""
+    return _row(settings, settings.active + 1)
 
 
 def current_array(settings: CoilSettings) -> CoilArray:
-    """The first ``active + 3`` coils of the row (thin windings): coil k at the z_k of every output."""
-    s = settings
-    return CoilArray(count=s.active + 3, pitch=s.pitch, radius=s.radius, first=row_first(s), turns=s.turns,
-                     max_current=s.max_current, active=s.active)
+    """The first ``active + 3`` coils of the row: coil k at the z_k of every output."""
+    return _row(settings, settings.active + 3)
 
 
-def device_coils(length: float, pitch: float, active: int) -> int:
+def device_coils(length: float, pitch: float, active: int, handover: float = CoilArray.handover) -> int:
     """Coils of the device row of ``pitch`` [m] with ``active`` coils carrying current over
-    a ``length`` [m] (:func:`tiltwell.coils.array.row_layout`, the tapered hand-over of
-    :class:`~tiltwell.coils.array.CoilArray`'s default)."""
-    return row_layout(length, pitch, active, CoilArray.handover)[0]
+    a ``length`` [m] (:func:`tiltwell.coils.array.row_layout`; ``handover`` [pitches])."""
+    return row_layout(length, pitch, active, handover)[0]
+
+
+def device_array(settings: CoilSettings, length: float) -> CoilArray:
+    """The whole device row for a deceleration over ``length`` [m]
+    (:func:`tiltwell.workflows.devicemodel.row_array` at these settings)."""
+    return _row(settings, device_coils(length, settings.pitch, settings.active, settings.handover))
+
+
+def table_times(schedule: Schedule, plan_step: float) -> FloatArray:
+    """The waveform table's times [s]: 0, plan_step, 2 plan_step, ... and the schedule's
+    duration last (:func:`tiltwell.workflows.coilreport.coil_run`'s table)."""
+    points = math.floor(schedule.duration / plan_step * (1.0 - 1e-12)) + 2
+    return np.append(plan_step * np.arange(points - 1), schedule.duration)
+
+
+def device_load(settings: CoilSettings, schedule: Schedule, hardware: Hardware) -> DriveLoad:
+    """:func:`tiltwell.drive_load` of the whole row over the whole shot: the currents of
+    :func:`tiltwell.coils.array.waveforms` at :func:`table_times`, planned 512 times at a
+    time (bounded memory), judged with ``hardware``."""
+    array = device_array(settings, schedule.length)
+    times = table_times(schedule, hardware.plan_step)
+    parts = [waveforms(array, schedule, settings.gradient, times[i:i + 512]).currents for i in range(0, times.size, 512)]
+    h = hardware
+    return drive_load(array, times, np.concatenate(parts), rise_time=h.rise_time, fill_factor=h.fill_factor,
+                      repetition_rate=h.repetition_rate, heat_transfer=h.heat_transfer, limits=h.limits)
 
 
 def current_window(settings: CoilSettings, schedule: Schedule) -> FloatArray:
@@ -200,21 +283,47 @@ def problems(settings: CoilSettings, inputs: Inputs) -> tuple[list[str], list[st
     hx, hy, _ = inputs.half_widths
     corner = math.hypot(hx, hy)
     scan_problems = list(common)
-    if not corner < s.radius:
+    if not corner < s.radius - 0.5 * s.width:
         scan_problems.append(
-            f"the bore (coil radius {s.radius * 1e3:.4g} mm) must exceed the corner of the trap box, "
-            f"sqrt(hx^2 + hy^2) = {corner * 1e3:.4g} mm (the main trap's box; the field is singular on a winding)")
+            f"coil radius [mm] must be > {(corner + 0.5 * s.width) * 1e3:.4g} mm: the bore (radius less half the "
+            f"{s.width * 1e3:.4g} mm winding width) must exceed the corner of the trap box, sqrt(hx^2 + hy^2) = "
+            f"{corner * 1e3:.4g} mm (the main trap's box; the field is singular on a winding); got "
+            f"{s.radius * 1e3:.4g} mm")
     current_problems = list(common)
+    if not s.radius > 0.5 * s.width:
+        current_problems.append(f"coil radius [mm] must be > {s.width * 500:.4g} mm, half the winding width "
+                                f"([coils] width); got {s.radius * 1e3:.4g} mm")
     schedule = inputs.schedule
     if schedule is None:
         current_problems.append(f"no schedule, so no currents to draw: {inputs.why}")
     elif not common:
-        n, needed = device_coils(schedule.length, s.pitch, s.active), s.active + 3
+        n, needed = device_coils(schedule.length, s.pitch, s.active, s.handover), s.active + 3
         if n < needed:  # fewer than active + 3 coils: the trap's path is shorter than 3 pitches
             current_problems.append(
                 f"the device is {schedule.length:.3g} m long: {n} coils of pitch {s.pitch * 1e3:.4g} mm, fewer "
                 f"than the active + 3 = {needed} the current view needs ({s.active} active coils)")
     return scan_problems, current_problems
+
+
+def hardware_problems(settings: CoilSettings, inputs: Inputs, current_problems: list[str]) -> list[str]:
+    """What stops the hardware verdicts, in words, beyond ``current_problems`` (which stop them too)."""
+    s, schedule, hardware = settings, inputs.schedule, inputs.hardware
+    if current_problems or schedule is None:
+        return []
+    if hardware is None or not (s.width > 0.0 and s.height > 0.0):
+        return []  # not a bad setting: the part says so in place of the verdicts (NO_HARDWARE)
+    found = []
+    if s.height > s.pitch:
+        found.append(f"coil pitch [mm] must be >= {s.height * 1e3:.4g} mm, the winding height ([coils] height), "
+                     f"for the neighbours not to overlap; got {s.pitch * 1e3:.4g} mm")
+    coils = device_coils(schedule.length, s.pitch, s.active, s.handover)
+    points = table_times(schedule, hardware.plan_step).size
+    if coils * points > MAX_VERDICT_VALUES:
+        found.append(f"no hardware verdicts here: {coils} coils x {points} table times is more than the "
+                     f"{MAX_VERDICT_VALUES:.3g} values the explorer judges; a coil pitch [mm] of at least "
+                     f"{s.pitch * 1e3 * coils * points / MAX_VERDICT_VALUES:.3g} mm fits (or run tiltwell coils on "
+                     "the saved scenario)")
+    return found
 
 
 def default_settings(model: Model) -> CoilSettings:
@@ -235,7 +344,7 @@ def default_settings(model: Model) -> CoilSettings:
     coils = base.coils
     if coils is not None:  # the row's own gradient rule: [coils] gradient, else the [trap] quadrupole's
         return CoilSettings(pitch, coils.radius, coils.turns, coils.active, coils.max_current or limit,
-                            row_gradient(physics))
+                            row_gradient(physics), coils.width, coils.height, coils.handover)
     trap = build(physics).trap
     gradient = axial_gradient(trap)
     (x0, x1), (y0, y1), _ = trap.bounds

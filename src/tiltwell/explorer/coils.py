@@ -7,8 +7,11 @@ section is open. Every change redraws the currents (cheap:
 :func:`tiltwell.coils.array.waveforms`); the depth and acceptances against the trap's phase
 between two coils (:func:`tiltwell.coils.moving.moving_trap_phases`, ~0.5 s) are recomputed in
 the background a moment after the settings stop changing, or on the button, and a result
-that arrives after the settings changed is discarded. Bad settings never raise out of a
-control: the message line says what is wrong.
+that arrives after the settings changed is discarded. The hardware verdicts of the whole
+row over the whole shot (:func:`tiltwell.coils.drive.drive_load`, ~1 s on the demo) follow
+the same way: in the background, :data:`HARDWARE_DELAY` after the settings stop changing,
+a stale result discarded. Bad settings never raise out of a control: the message line says
+what is wrong.
 """
 
 from __future__ import annotations
@@ -25,28 +28,46 @@ import numpy as np
 
 from . import coilviews as views
 from .coilmodel import (
+    NO_HARDWARE,
     NO_INPUTS,
     PHASES,
     CoilSettings,
+    Hardware,
     Inputs,
     currents,
+    device_load,
+    hardware_problems,
     inputs_of,
     problems,
     scan,
 )
-from .coilwidgets import READOUTS, TITLE, make_actions, make_controls, make_layout, make_readouts, settings_of
+from .coilwidgets import (
+    READOUTS,
+    TITLE,
+    make_actions,
+    make_controls,
+    make_layout,
+    make_readouts,
+    settings_of,
+    verdict_table,
+)
 from .model import Picture
 from .plumbing import Callbacks, bokeh_views, reserialise, start
 from .readouts import warning
 from .tasks import Tasks
 from .widgets import check_values
 from .._base.validation import TiltwellError
+from ..coils.drive import DriveLoad
 from ..coils.moving import PhaseScan
+from ..coils.schedule import Schedule
+from ..physics.limits import Verdict
 
-__all__ = ["READOUTS", "SCAN_DELAY", "TITLE", "CoilPart"]
+__all__ = ["HARDWARE_DELAY", "READOUTS", "SCAN_DELAY", "TITLE", "CoilPart"]
 
 #: Seconds of quiet after a change before the phase scan is recomputed.
 SCAN_DELAY = 0.5
+#: Seconds of quiet after a change before the hardware verdicts are recomputed.
+HARDWARE_DELAY = 0.3
 _SCANNED = ("ripple", "worst", "mean", "zero_offset")
 _TITLES = {"depth": "well depth between two coils", "acceptance": "acceptances between two coils"}
 
@@ -81,14 +102,25 @@ class CoilPart:
         ``limit_high``, ``limit_low``: the current limit per turn drawn on the currents [A].
     message, status : ipywidgets.HTML
         What is wrong with the settings; the outcome of the last phase scan.
+    hardware, hardware_status : ipywidgets.HTML
+        The verdict table (CSS class ``tiltwell-coils-hardware``) and the outcome of the last
+        hardware check.
+    verdicts : tuple of Verdict
+        The verdicts shown (empty while none is shown), each quantity's worst value over the
+        row and the shot against the scenario's ``[limits]``.
+    load : DriveLoad or None
+        The :func:`tiltwell.drive_load` result they come from.
     auto_scan : bool
         Rescan in the background after changes (else only on the button or :meth:`scan`).
+    auto_hardware : bool
+        Recompute the verdicts in the background after changes (else only on :meth:`check_hardware`).
     """
 
     def __init__(self, defaults: CoilSettings, lock: threading.RLock, unexpected: Callable[[Exception], None],
-                 *, auto_scan: bool = True) -> None:
+                 *, auto_scan: bool = True, auto_hardware: bool = True) -> None:
         self.defaults = defaults
         self.auto_scan = auto_scan
+        self.auto_hardware = auto_hardware
         self._lock = lock
         self._inputs: Inputs = NO_INPUTS
         self._drawn: tuple[Any, ...] | None = None
@@ -96,14 +128,21 @@ class CoilPart:
         self.state: dict[str, float] = {}
         self.message = widgets.HTML("")
         self.status = widgets.HTML("")
+        self.hardware = widgets.HTML("—")
+        self.hardware_status = widgets.HTML("")
+        self.verdicts: tuple[Verdict, ...] = ()
+        self.load: DriveLoad | None = None
+        self._judged: tuple[Any, ...] | None = None
         self._tasks = Tasks(lock, self._report, unexpected)
+        self._hardware_tasks = Tasks(lock, self._report_hardware, unexpected)
         self._callbacks = Callbacks(lambda text: setattr(self.message, "value", warning(text)), unexpected)
         self.controls = make_controls(defaults)
         self.actions = make_actions()
         self.readouts = make_readouts()
         self.figures, self.sources, self.spans = views.make_views()
         self.views = bokeh_views(self.figures)
-        self.widget = make_layout(self.controls, self.actions, self.readouts, self.views, self.message, self.status)
+        self.widget = make_layout(self.controls, self.actions, self.readouts, self.views, self.message, self.status,
+                                  self.hardware, self.hardware_status)
         self.section = widgets.Accordion(children=[self.widget], titles=(TITLE,))
         self.section.add_class("tiltwell-coils-section")
         on = self._callbacks
@@ -127,7 +166,7 @@ class CoilPart:
 
     def settings(self) -> CoilSettings:
         """The control values, SI."""
-        return settings_of(self.controls)
+        return settings_of(self.controls, self.defaults)
 
     def update(self, **values: Any) -> None:
         """Set several controls at once, by their :attr:`controls` names, and redraw once.
@@ -152,7 +191,7 @@ class CoilPart:
             reference = (picture.acceptance.longitudinal.depth, picture.acceptance.longitudinal.area,
                          picture.acceptance.transverse.area)
             inputs = inputs_of(picture.trap, picture.settings.deceleration, reference, picture.schedule,
-                               "; ".join(picture.problems))
+                               "; ".join(picture.problems), picture.scenario)
         with self._lock:
             self._inputs = inputs
         if self.is_open:
@@ -160,6 +199,9 @@ class CoilPart:
 
     def _report(self, text: str) -> None:
         self.status.value = text
+
+    def _report_hardware(self, text: str) -> None:
+        self.hardware_status.value = text
 
     # --- the cheap path -----------------------------------------------------------------------
 
@@ -178,6 +220,9 @@ class CoilPart:
             found_scan, found_currents = problems(settings, inputs)
             found = list(dict.fromkeys(found_scan + found_currents))
             found += self._draw_currents(settings, inputs, found_currents)
+            found_hardware = hardware_problems(settings, inputs, found_currents)
+            found += found_hardware
+            self._mark_hardware(settings, inputs, bool(found_currents or found_hardware))
             lines = views.reference_columns(*inputs.reference) if inputs.species is not None else {}
             for name in views.PHASE_FIGURES:
                 self._fill(name + "_reference", lines)
@@ -293,6 +338,68 @@ class CoilPart:
             self.figures[name].title.text = title
         self._scanned = key
 
+    # --- the hardware verdicts ----------------------------------------------------------------
+
+    def _hardware_key(self, settings: CoilSettings, inputs: Inputs) -> tuple[Any, ...]:
+        return (settings, inputs.current_key, inputs.hardware)
+
+    def _mark_hardware(self, settings: CoilSettings, inputs: Inputs, blocked: bool) -> None:
+        """Clear the verdicts when out of date and (with :attr:`auto_hardware`) recompute them later."""
+        key = self._hardware_key(settings, inputs)
+        if key == self._judged:
+            return
+        self._judged = None
+        self._hardware_tasks.cancel()
+        self.verdicts, self.load = (), None
+        if inputs.hardware is None or not (settings.width > 0.0 and settings.height > 0.0):
+            self.hardware.value, self.hardware_status.value = NO_HARDWARE, ""
+        elif blocked:
+            self.hardware.value, self.hardware_status.value = "— (see the message above)", ""
+        elif self.auto_hardware:
+            self.hardware.value = "— (checking the whole shot…)"
+            self._hardware_tasks.later(HARDWARE_DELAY, lambda: self._callbacks.guard(self.check_hardware))
+        else:
+            self.hardware.value = "— (call check_hardware())"
+
+    def check_hardware(self) -> Future[DriveLoad | None]:
+        """Judge the whole row over the whole shot at the current settings against the
+        scenario's limits, in the background (:func:`tiltwell.coils.drive.drive_load`); shown
+        when done unless the settings changed meanwhile.
+
+        Returns the task's future: its result is the DriveLoad, or None when it failed (the
+        outcome in :attr:`hardware_status`). Raises TiltwellError when the settings make no
+        verdicts (the reason is also in :attr:`message`)."""
+        with self._lock:
+            settings, inputs = self.settings(), self._inputs
+            found = problems(settings, inputs)[1]
+            found = found + hardware_problems(settings, inputs, found)
+            if found:
+                raise TiltwellError(found[0])
+            schedule, hardware = inputs.schedule, inputs.hardware
+            if hardware is None or not (settings.width > 0.0 and settings.height > 0.0):
+                raise TiltwellError(NO_HARDWARE.removeprefix("— (").removesuffix(")"))
+            assert schedule is not None  # problems() says so otherwise
+            key = self._hardware_key(settings, inputs)
+        stop = self._hardware_tasks.ticking("hardware check (whole row, whole shot)", self._report_hardware,
+                                            lambda _: None)
+
+        def compute(s: CoilSettings = settings, plan: Schedule = schedule, h: Hardware = hardware) -> DriveLoad:
+            try:
+                return device_load(s, plan, h)
+            except TiltwellError:
+                self.hardware.value = "— (the check failed: see below)"
+                raise
+            finally:
+                stop()
+
+        return self._hardware_tasks.run("hardware check", compute, lambda load: self._show_hardware(key, load),
+                                        lambda: self._hardware_key(self.settings(), self._inputs) == key)
+
+    def _show_hardware(self, key: tuple[Any, ...], load: DriveLoad) -> None:
+        self.load, self.verdicts = load, load.verdicts
+        self.hardware.value = verdict_table(load.verdicts)
+        self._judged = key
+
     # --- display and shutdown -----------------------------------------------------------------
 
     def fresh(self) -> None:
@@ -300,9 +407,11 @@ class CoilPart:
         reserialise(self.views, self.figures)
 
     def wait(self, timeout: float | None = None) -> None:
-        """Start a pending rescan at once and wait for all background work."""
+        """Start a pending rescan and hardware check at once and wait for all background work."""
         self._tasks.flush(timeout)
+        self._hardware_tasks.flush(timeout)
 
     def close(self) -> None:
-        """Stop background work (waiting for a running scan to end)."""
+        """Stop background work (waiting for a running scan or hardware check to end)."""
         self._tasks.shutdown()
+        self._hardware_tasks.shutdown()

@@ -1,23 +1,28 @@
 """The ipywidgets of the explorer's coil-array part: its sliders, buttons, readouts and
 layout, in the look of the main explorer (:mod:`.widgets`, :mod:`.style`).
 
-The CSS classes ``tiltwell-coils``, ``tiltwell-coils-readouts`` and
-``tiltwell-coils-view-*`` let a browser test find the part, its readouts and its plots.
+The CSS classes ``tiltwell-coils``, ``tiltwell-coils-readouts``, ``tiltwell-coils-hardware``
+and ``tiltwell-coils-view-*`` let a browser test find the part, its readouts, its hardware
+verdicts and its plots.
 """
 
 from __future__ import annotations
 
 import html
-from collections.abc import Mapping
+import math
+from collections.abc import Mapping, Sequence
 
 import ipywidgets as widgets
 
 from . import style
 from .coilmodel import CoilSettings
+from .readouts import warning
 from .widgets import CONTROL_LAYOUT, LABEL_STYLE, readout_table, slider
 from ..physics.hardware import ELECTRICAL_CAUTION
+from ..physics.limits import Verdict
 
-__all__ = ["READOUTS", "TITLE", "make_actions", "make_controls", "make_layout", "make_readouts", "settings_of"]
+__all__ = ["READOUTS", "TITLE", "VERDICT_UNITS", "make_actions", "make_controls", "make_layout", "make_readouts",
+           "settings_of", "verdict_table"]
 
 #: The section's title in the explorer.
 TITLE = "coil array: currents, and the trap between two coils"
@@ -30,6 +35,34 @@ READOUTS: tuple[tuple[str, str], ...] = (
     ("mean", "mean over the phases: long. / trans."),
     ("zero_offset", "largest field-zero offset"),
 )
+
+
+#: How each verdict is shown: label, the unit people read and its size in SI.
+VERDICT_UNITS: dict[str, tuple[str, str, float]] = {
+    "voltage": ("driver voltage", "V", 1.0),
+    "current": ("current per turn", "A", 1.0),
+    "current_density": ("current density", "A/mm²", 1e6),
+    "temperature_rise": ("temperature rise per shot", "K", 1.0),
+    "steady_temperature_rise": ("steady temperature rise", "K", 1.0),
+    "hoop_stress": ("hoop stress", "MPa", 1e6),
+    "axial_force": ("axial force on a coil", "N", 1.0),
+}
+
+
+def verdict_table(verdicts: Sequence[Verdict]) -> str:
+    """The verdicts as an HTML table: quantity, worst value and limit in the unit people
+    read (:data:`VERDICT_UNITS`), pass or FAIL, and under a failing row its advice."""
+    rows = ["<tr><th align='left'>quantity</th><th align='right'>worst value</th><th align='right'>limit</th>"
+            "<th>unit</th><th></th></tr>"]
+    for v in verdicts:
+        label, unit, size = VERDICT_UNITS.get(v.quantity, (v.quantity.replace("_", " "), v.unit, 1.0))
+        state = "pass" if v.passed else f"<b style='color:{style.WARNING}'>FAIL</b>"
+        value = f"{v.value / size:.4g}" if math.isfinite(v.value) else "—"
+        rows.append(f"<tr><td>{html.escape(label)}</td><td align='right'>{value}</td>"
+                    f"<td align='right'>{v.limit / size:.4g}</td><td>{html.escape(unit)}</td><td>{state}</td></tr>")
+        if v.advice:
+            rows.append(f"<tr><td></td><td colspan='4'><small>{warning(html.escape(v.advice))}</small></td></tr>")
+    return "<table class='tiltwell-verdicts'>" + "".join(rows) + "</table>"
 
 
 def make_controls(s: CoilSettings) -> dict[str, widgets.Widget]:
@@ -52,12 +85,14 @@ def make_controls(s: CoilSettings) -> dict[str, widgets.Widget]:
     }
 
 
-def settings_of(controls: Mapping[str, widgets.Widget]) -> CoilSettings:
-    """The values of :func:`make_controls`' sliders as :class:`CoilSettings`, SI."""
+def settings_of(controls: Mapping[str, widgets.Widget], winding: CoilSettings | None = None) -> CoilSettings:
+    """The values of :func:`make_controls`' sliders as :class:`CoilSettings`, SI, with the
+    winding (width, height, hand-over; no sliders) of ``winding`` (default: thin)."""
     c = controls
+    fixed = {} if winding is None else {"width": winding.width, "height": winding.height, "handover": winding.handover}
     return CoilSettings(pitch=float(c["pitch"].value) * 1e-3, radius=float(c["radius"].value) * 1e-3,
                         turns=int(c["turns"].value), active=int(c["active"].value),
-                        max_current=float(c["max_current"].value), gradient=float(c["gradient"].value))
+                        max_current=float(c["max_current"].value), gradient=float(c["gradient"].value), **fixed)
 
 
 def make_actions() -> dict[str, widgets.Button]:
@@ -75,9 +110,11 @@ def make_readouts() -> dict[str, widgets.HTML]:
 
 def make_layout(controls: Mapping[str, widgets.Widget], actions: Mapping[str, widgets.Widget],
                 readouts: Mapping[str, widgets.HTML], views: Mapping[str, widgets.Widget],
-                message: widgets.HTML, status: widgets.HTML) -> widgets.VBox:
-    """The part: sliders and buttons beside the readouts, the messages, then the current
-    view (with the electrical caution under it) and the two phase views."""
+                message: widgets.HTML, status: widgets.HTML, hardware: widgets.HTML | None = None,
+                hardware_status: widgets.HTML | None = None) -> widgets.VBox:
+    """The part: sliders and buttons beside the readouts, the messages, the hardware
+    verdicts beside the electrical caution, then the current view (with the caution under
+    it too) and the two phase views."""
     title = widgets.HTML("<b>coil array</b> — the trap made by a row of thin coils; species, deceleration and "
                          "trap box are those set above")
     left = widgets.VBox([*controls.values(), widgets.HBox(list(actions.values()))],
@@ -89,6 +126,15 @@ def make_layout(controls: Mapping[str, widgets.Widget], actions: Mapping[str, wi
         view.add_class(f"tiltwell-coils-view-{name}")
     plots = widgets.GridBox([widgets.VBox([views["currents"], caution]), views["depth"], views["acceptance"]],
                             layout=widgets.Layout(grid_template_columns=style.VIEW_COLUMNS))
-    root = widgets.VBox([title, widgets.HBox([left, table]), message, status, plots])
+    parts: list[widgets.Widget] = [title, widgets.HBox([left, table]), message, status]
+    if hardware is not None:
+        hardware.add_class("tiltwell-coils-hardware")
+        head = widgets.HTML("<b>hardware over the whole shot</b> — every coil of the row, worst value against "
+                            "[limits] (tiltwell.drive_load)")
+        beside = widgets.HTML(f"<small>{html.escape(ELECTRICAL_CAUTION)}</small>",
+                              layout=widgets.Layout(width=style.CONTROL_WIDTH))
+        column = [head, hardware] + ([] if hardware_status is None else [hardware_status])
+        parts.append(widgets.HBox([widgets.VBox(column, layout=widgets.Layout(width=style.COLUMN_WIDTH)), beside]))
+    root = widgets.VBox([*parts, plots])
     root.add_class("tiltwell-coils")
     return root
