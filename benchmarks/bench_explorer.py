@@ -45,8 +45,8 @@ COIL_MOVES = 20
 COIL_PART_MOVES = 20
 SPECIES = ("Rb-87", "NH", "CaF", "Na-23", "O2", "Cr", "Li-7", "K-39")
 TARGET_S = 0.05
-#: Bound for every species of SPECIES in the demo's 250 T/m quadrupole (Rb-87's critical
-#: deceleration there is 1.6e4 m/s^2).
+#: Bound for every species of SPECIES in the demo's 100 T/m quadrupole (Rb-87's critical
+#: deceleration there is 6.4e3 m/s^2, measured; mu_B B' / m by hand).
 SPECIES_DECELERATION = 3000.0
 
 # the invented coil-pair scenario of tests/test_explorer.py, with the default sample size and seed

@@ -126,7 +126,7 @@ def test_sweep_writes_csv(tmp_path) -> None:  # type: ignore[no-untyped-def]
 @pytest.mark.slow
 @pytest.mark.parametrize(
     ("edit", "word"),
-    [("gradient = 250.0", "gradeint = 250.0"), ("temperature = 300.0", "temperature = -4.0")],
+    [("gradient = 100.0", "gradeint = 100.0"), ("temperature = 300.0", "temperature = -4.0")],
     ids=["unknown-key", "negative-temperature"],
 )
 def test_run_scenario_errors_are_one_line(tmp_path, edit: str, word: str) -> None:  # type: ignore[no-untyped-def]
@@ -167,7 +167,10 @@ def test_run_writes_the_coil_timing_table(tmp_path) -> None:  # type: ignore[no-
     positions, times = rows[:, 0], rows[:, 1]
     # every coil of the row is listed; those before the start (after the end) are "passed" at 0 (the duration)
     inside = (positions >= 0.0) & (positions <= plan.length)
-    assert inside.sum() == 126 and positions.size == 130  # 0, 12 mm, ..., 1.5 m and two coils beyond each end
+    # row_layout's rule: floor(L / p) + active coils, less one for a whole L / p with a tapered hand-over:
+    # floor(3.0 / 0.008) + 6 - 1 = 375 + 5 = 380, the first at -(6/2 - 1) x 8 mm = -16 mm, so
+    # -16 mm + k x 8 mm for k = 0 ... 379: 0, 8 mm, ..., 3.0 m (376 coils) and two beyond each end
+    assert inside.sum() == 376 and positions.size == 380
     assert np.allclose(v0 * times[inside] - 0.5 * a * times[inside] ** 2, positions[inside], rtol=1e-9, atol=1e-12)
     assert np.all(times[positions < 0.0] == 0.0)
     assert np.allclose(times[positions > plan.length], (v0 - plan.final_velocity) / a, rtol=1e-12)
@@ -183,8 +186,11 @@ def test_coils_text_summary_carries_the_caution(tmp_path, capsys: pytest.Capture
     out = tmp_path / "waveforms.csv"
     assert main(["coils", str(path), "--csv", str(out)]) == 0
     text = capsys.readouterr().out
-    for phrase in ("130 coils at 12 mm pitch", "mK", "mm*m/s", "mH", "kV", "I^2 t", "CAUTION", "electrical-safety",
-                   "coil k at z = -24 mm + k x 12 mm", f"wrote {out}"):
+    # the row (row_layout's rule): floor(3.0 m / 8 mm) + 6 active - 1 (whole number, tapered hand-over)
+    # = 380 coils, the first at -(6/2 - 1) x 8 mm = -16 mm
+    for phrase in ("380 coils at 8 mm pitch", "mK", "mm*m/s", "mH", "kV", "I^2 t", "CAUTION", "electrical-safety",
+                   "coil k at z = -16 mm + k x 8 mm", "A/s while the trap moves (the driver's slew rate)",
+                   "while running", "(bound, peak current for the longest pulse: +", f"wrote {out}"):
         assert phrase in text
     assert "electrical-safety" in out.read_text()
 
@@ -198,9 +204,9 @@ def _coils_cli(*argv: str) -> subprocess.CompletedProcess[str]:
 @pytest.mark.parametrize(
     ("edit", "word"),
     [
-        (("pitch = 0.012 ", ""), "[deceleration] pitch"),
-        (("turns = 200", "turns = -200"), "[coils] turns"),
-        (("width = 0.006", "width = 0.04"), "radius - width/2"),  # no bore (a narrow one only shrinks the box)
+        (("pitch = 0.008 ", ""), "[deceleration] pitch"),
+        (("turns = 24", "turns = -24"), "[coils] turns"),
+        (("width = 0.004", "width = 0.04"), "radius - width/2"),  # no bore (a narrow one only shrinks the box)
         (("plan_step = 2.0e-6", "plan_step = 1e-11"), "[coils] plan_step"),
     ],
     ids=["no-pitch", "negative-turns", "bore-too-small", "table-too-long"],
@@ -212,7 +218,7 @@ def test_coils_errors_are_one_line_and_leave_the_csv_alone(tmp_path, edit: tuple
     assert edit[0] in text
     text = text.replace(edit[0], edit[1], 1)
     if word == "[deceleration] pitch":
-        text = text.replace("peak_current = 400.0", "")
+        text = text.replace("peak_current = 1000.0", "")
     path = tmp_path / "bad.toml"
     path.write_text(text)
     old = tmp_path / "old.csv"
@@ -241,7 +247,9 @@ def test_coils_needs_the_section_and_an_existing_folder(tmp_path) -> None:  # ty
 def test_coils_track_writes_the_device_check_and_its_figures(tmp_path) -> None:  # type: ignore[no-untyped-def]
     # The numbers' physics is checked in tests/test_devicecompare.py and tests/test_device.py;
     # here: the command wires the scenario's beam into compare_device, the box shrinks to the
-    # bore as documented (closed form: scale 0.99 x 16 mm / hypot(12.8, 12.8) mm for the demo),
+    # bore as documented (closed form: bore = radius - width/2 = 10 - 2 = 8 mm, box corner
+    # hypot(12.8, 12.8) mm with 12.8 mm = 4 max_field / gradient = 4 x 0.32 T / 100 T/m, so
+    # scale 0.99 x 8 mm / hypot(12.8, 12.8) mm for the demo),
     # and the figures are written.
     import tiltwell as tw
     from tiltwell import scenario as sc
@@ -256,7 +264,7 @@ def test_coils_track_writes_the_device_check_and_its_figures(tmp_path) -> None: 
     numbers = json.loads(stream.getvalue())["device_check"]
     assert numbers["particles"] == 300
     assert numbers["ripple_loss"] == pytest.approx(numbers["kept_rigid_twin"] - numbers["kept_coil_row"], abs=1e-15)
-    scale = 0.99 * 0.016 / np.hypot(0.0128, 0.0128)
+    scale = 0.99 * (0.010 - 0.004 / 2) / np.hypot(0.0128, 0.0128)
     np.testing.assert_allclose(numbers["box_half_widths"], [0.0128 * scale, 0.0128 * scale, 0.0064], rtol=1e-12)
     # the same run by hand: the beam sampled as the captured fraction samples it, then compare_device
     built = tw.build(demo)

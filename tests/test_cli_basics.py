@@ -141,7 +141,7 @@ def test_every_positional_argument_has_help(name: str) -> None:
 
 # --- the figure data of a scenario -----------------------------------------------------------
 
-GRADIENT, MAX_FIELD = 250.0, 0.8  # T/m, T: the demo's ideal quadrupole
+GRADIENT, MAX_FIELD = 100.0, 0.32  # T/m, T: the demo's ideal quadrupole (typed from its [trap])
 EDGE = MAX_FIELD / GRADIENT  # m
 OH = tw.species("OH")
 

@@ -37,16 +37,16 @@ def test_summary_kinematics_against_closed_forms(summary: dict) -> None:  # type
     weight from memory); a = (v0^2 - vf^2) / (2 L); t = (v0 - vf) / a (kinematics)."""
     v0 = KRYPTON_SPEED_300K  # the closed form above, written out in conftest
     assert summary["initial_velocity"] == pytest.approx(v0, rel=1e-9)
-    assert summary["deceleration"] == pytest.approx((v0**2 - 20.0**2) / (2 * 1.5), rel=1e-9)
+    assert summary["deceleration"] == pytest.approx((v0**2 - 20.0**2) / (2 * 3.0), rel=1e-9)
     assert summary["duration"] == pytest.approx((v0 - 20.0) / summary["deceleration"], rel=1e-9)
-    assert summary["length"] == pytest.approx(1.5, rel=1e-12)
+    assert summary["length"] == pytest.approx(3.0, rel=1e-12)
 
 
 def test_summary_trap_numbers_against_closed_forms(summary: dict) -> None:  # type: ignore[type-arg]
     """Ideal quadrupole: critical deceleration mu B'/m; axis depth at a tilt f = m a is
     D (1 - f/c) with D = mu B_max, c = mu B' (tests/test_acceptance.py derives it)."""
     oh = species("OH")
-    c, depth = oh.moment * 250.0, oh.moment * 0.8
+    c, depth = oh.moment * 100.0, oh.moment * 0.32
     assert summary["critical_deceleration"] == pytest.approx(c / oh.mass, rel=1e-9)
     expected = depth * (1 - oh.mass * summary["deceleration"] / c)
     assert summary["escape_energy"] == pytest.approx(expected, rel=1e-6)
@@ -59,18 +59,23 @@ def test_summary_has_every_key_with_its_unit(summary: dict) -> None:  # type: ig
                 "deceleration", "initial_velocity", "length", "duration", "final_velocity"):
         assert key in summary and key in summary["units"]
     assert summary["mc_particles"] == 2000
-    # the row: coil j at j x 12 mm carries current while the trap (0 to 1.5 m) is within 3 pitches of it
-    # (6 active, tapered): integers j with -3 < j < 1.5 / 0.012 + 3 = 128, i.e. -2 ... 127
-    assert summary["coils"] == len(range(-2, 128)) == 130
+    # the row: coil j at j x 8 mm carries current while the trap (0 to 3.0 m) is within 3 pitches of it
+    # (6 active, tapered): integers j with -3 < j < 3.0 / 0.008 + 3 = 378, i.e. -2 ... 377
+    assert summary["coils"] == len(range(-2, 378)) == 380
     assert "electrical-safety" in summary["caution"]
     # the three estimates agree to within their noise and model differences on this case
     fractions = [summary[k] for k in ("captured_fraction_overlap", "captured_fraction_energy", "captured_fraction_mc")]
     assert max(fractions) - min(fractions) < 0.05
 
 
+#: Sweep points at 0.2, 0.4, 0.6 and 0.8 of the demo's critical deceleration mu B'/m (OH, 100 T/m:
+#: 1.1135e-23 J/T x 100 T/m / 2.8234e-26 kg = 3.94e4 m/s^2), so every point still holds molecules.
+SWEEP_POINTS = np.array([8e3, 1.6e4, 2.4e4, 3.2e4])
+
+
 @pytest.fixture(scope="module")
 def serial_rows() -> list[dict]:  # type: ignore[type-arg]
-    return sweep(_small(500, track=False), np.array([2e4, 4e4, 6e4, 8e4]))
+    return sweep(_small(500, track=False), SWEEP_POINTS)
 
 
 @pytest.mark.slow
@@ -78,7 +83,7 @@ def test_sweep_trades_length_against_acceptance(serial_rows: list[dict]) -> None
     """Harder deceleration: shorter machine (L = (v0^2 - vf^2) / 2a exactly), fewer coils,
     smaller acceptance and captured fraction."""
     lengths = np.array([r["length"] for r in serial_rows])
-    assert lengths * np.array([2e4, 4e4, 6e4, 8e4]) == pytest.approx(np.full(4, lengths[0] * 2e4), rel=1e-12)
+    assert lengths * SWEEP_POINTS == pytest.approx(np.full(4, lengths[0] * SWEEP_POINTS[0]), rel=1e-12)
     for key in ("coils", "longitudinal_acceptance", "transverse_acceptance", "acceptance_6d",
                 "captured_fraction_overlap", "captured_fraction_energy"):
         values = [r[key] for r in serial_rows]
@@ -91,7 +96,7 @@ def test_sweep_on_a_dask_cluster_equals_the_serial_sweep(serial_rows: list[dict]
     distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
         with distributed.Client(cluster) as client:
-            rows = sweep(_small(500, track=False), np.array([2e4, 4e4, 6e4, 8e4]), executor=client.get_executor())
+            rows = sweep(_small(500, track=False), SWEEP_POINTS, executor=client.get_executor())
     assert rows == serial_rows
 
 
@@ -123,8 +128,8 @@ def test_sweep_bad_input(kwargs: dict, word: str) -> None:  # type: ignore[type-
 def test_time_of_flight_in_the_summary() -> None:
     """With a detector 0.2 m beyond the released trap (final speed 20 m/s) the mean
     arrival time is near 0.2 m / 20 m/s = 10 ms; the spread comes from the trap-frame
-    velocities (a few m/s in the first estimate's 321 mK well; the row's 550 mK well holds
-    OH up to ~23 m/s, more than the release speed), so 20 % brackets it comfortably."""
+    velocities (under 10 m/s in the first estimate's well: axis depth mu B_max (1 - a/c) =
+    96 mK for OH at 0.32 T, a/c = 0.63, i.e. sqrt(2 D / m) = 9.7 m/s), so 20 % brackets it."""
     summary = summarise(sc.load(DEMO).replace("simulation", particles=2000, detector_distance=0.2,
                                               first_estimate=True))
     assert summary["arrival_time_mean"] == pytest.approx(0.2 / 20.0, rel=0.2)
