@@ -21,6 +21,14 @@ def _demo_text() -> str:
     return DEMO.read_text(encoding="utf-8")
 
 
+def _plain_demo_text() -> str:
+    """The demo without its uncertain absolute-number keys (pressure, seed fraction,
+    rotational temperature), for tests that add their own."""
+    keep = [line for line in _demo_text().splitlines()
+            if not line.startswith(("pressure =", "seed_fraction =", "rotational_temperature ="))]
+    return "\n".join(keep) + "\n"
+
+
 def test_demo_loads_and_round_trips(tmp_path: Path) -> None:
     scenario = sc.load(DEMO)
     assert scenario.species.name == "OH"
@@ -187,7 +195,7 @@ def _bounded_keys() -> list[tuple[str, str]]:
 
 
 def _kind(section: str, name: str) -> str:
-    cls = type(getattr(sc.load(DEMO), section))
+    cls = {"hold": sc.HoldSection}.get(section) or type(getattr(sc.load(DEMO), section))  # the demo has no [hold]
     return next(spec_of(item).kind for item in dataclasses.fields(cls) if item.name == name)
 
 
@@ -205,7 +213,7 @@ def test_an_out_of_range_value_is_reported_with_the_listed_range(section: str, n
     bad: object = int(2 * high) + 1 if kind.endswith("integer") else 2 * high + 1.0
     bad = {"triple": [bad] * 3, "pairs": [[bad, bad]]}.get(kind, bad)
     data = sc.load(DEMO).to_dict()
-    data.setdefault(section, {})[name] = bad
+    data.setdefault(section, {"time": 1.0} if section == "hold" else {})[name] = bad  # [hold] time is required
     with pytest.raises(TiltwellError) as caught:
         sc.from_dict(data)
     assert f"[{section}] {name}" in str(caught.value) and f"in {allowed}" in str(caught.value)
@@ -250,3 +258,139 @@ def test_numpy_numbers_from_widgets_are_accepted_as_plain_python_values() -> Non
     assert changed.trap.gradient == 200.0 and type(changed.trap.gradient) is float
     assert changed.simulation.particles == 50 and type(changed.simulation.particles) is int
     assert sc.loads(sc.dumps(changed)) == changed
+
+
+# ---- issue 11: source, hold and spin-flip keys ---------------------------------------------
+
+
+def test_new_keys_are_optional_and_old_files_load_unchanged() -> None:
+    scenario = sc.load(Path(__file__).with_name("data") / "coil_pair.toml")  # written before these keys
+    beam = scenario.beam
+    assert (beam.pressure, beam.seed_fraction, beam.peaking_factor, beam.rotational_temperature) == (None,) * 4
+    assert scenario.simulation.spin_flips is False and scenario.hold is None and len(scenario.uncertainties) == 0
+    assert "hold" not in scenario.to_dict() and "pressure" not in scenario.to_dict()["beam"]
+
+
+def test_new_keys_round_trip(tmp_path: Path) -> None:
+    changed = (sc.load(DEMO).replace("beam", pressure=3.0e5, seed_fraction=0.01, peaking_factor=1.9,
+                                     rotational_temperature=2.0)
+               .replace("simulation", spin_flips=True).replace("hold", time=0.5, vacuum_pressure=1e-7))
+    again = sc.load(sc.save(changed, tmp_path / "hold.toml"))
+    assert again == changed
+    assert changed.hold == sc.HoldSection(time=0.5, vacuum_pressure=1e-7, vacuum_temperature=295.0)
+    assert changed.simulation.spin_flips is True and changed.beam.peaking_factor == 1.9
+
+
+def test_describe_lists_the_new_keys() -> None:
+    text = sc.describe()
+    beam = text.split("[beam]")[1].split("[deceleration]")[0]
+    for line in ("  pressure [Pa] in (0, 1e+08]:", "  seed_fraction in (0, 1]:", "  peaking_factor in (0, 10]:",
+                 "  rotational_temperature [K] in (0, 1000]:"):
+        assert line in beam
+    assert "  spin_flips (default False): count non-adiabatic spin flips" in text
+    hold = text.split("[hold] (optional section)")[1].split("[limits]")[0]
+    for line in ("  time [s] in [0, 10000] (required):", "  vacuum_pressure [Pa] in [0, 100000] (default 0.0):",
+                 "  vacuum_temperature [K] in (0, 1000] (default 295.0):"):
+        assert line in hold
+
+
+@pytest.mark.parametrize(
+    ("section", "changes", "words"),
+    [
+        ("beam", {"pressure": 3e5}, ["[beam] give both pressure [Pa] and seed_fraction [1]"]),
+        ("beam", {"seed_fraction": 0.1}, ["[beam] give both pressure [Pa] and seed_fraction [1]"]),
+        ("beam", {"pressure": 0.0, "seed_fraction": 0.1}, ["[beam] pressure [Pa]", "(0, 1e+08]", "0.0"]),
+        ("beam", {"pressure": 1e5, "seed_fraction": 0.0}, ["[beam] seed_fraction", "(0, 1]", "0.0"]),
+        ("beam", {"rotational_temperature": -3.0}, ["[beam] rotational_temperature [K]", "(0, 1000]", "-3.0"]),
+        ("hold", {"vacuum_pressure": 1e-8}, ["[hold] time is required"]),
+        ("hold", {"time": 1.0, "vacuum_presure": 1e-8}, ["unknown key", "[hold] vacuum_presure",
+                                                         "did you mean 'vacuum_pressure'"]),
+        ("hold", {"time": -1.0}, ["[hold] time [s]", "[0, 10000]", "-1.0"]),
+        ("hold", {"time": 1.0, "vacuum_temperature": 0.0}, ["[hold] vacuum_temperature [K]", "(0, 1000]"]),
+        ("simulation", {"spin_flips": 1}, ["[simulation] spin_flips", "true or false"]),
+    ],
+    ids=["pressure-alone", "fraction-alone", "pressure-zero", "fraction-zero", "rotation-negative", "hold-no-time",
+         "hold-misspelt", "hold-negative", "vacuum-temperature-zero", "spin-flips-number"],
+)
+def test_new_key_errors_name_section_key_unit_and_range(section: str, changes: dict[str, object],
+                                                        words: list[str]) -> None:
+    data = sc.load(Path(__file__).with_name("data") / "coil_pair.toml").to_dict()  # none of these keys
+    data.setdefault(section, {}).update(changes)
+    with pytest.raises(TiltwellError) as caught:
+        sc.from_dict(data)
+    for word in words:
+        assert word in str(caught.value)
+
+
+# ---- issue 11: uncertain inputs -------------------------------------------------------------
+
+UNCERTAIN = """
+[beam]
+pressure = { value = 3.0e5, uncertainty = 0.3e5 }
+seed_fraction = { value = 0.02, relative = 0.25 }
+"""
+
+
+def _uncertain_text() -> str:
+    text = _plain_demo_text().replace("\n[beam]\n", UNCERTAIN, 1)
+    assert "pressure = {" in text
+    return text
+
+
+def test_uncertain_inputs_keep_the_nominal_value_and_round_trip(tmp_path: Path) -> None:
+    scenario = sc.loads(_uncertain_text())
+    assert scenario.beam.pressure == 3.0e5 and scenario.beam.seed_fraction == 0.02
+    assert dict(scenario.uncertainties) == {"beam.pressure": 3.0e4, "beam.seed_fraction": 0.25 * 0.02}
+    written = sc.dumps(scenario)
+    assert "pressure = { value = 300000.0, uncertainty = 30000.0 }" in written
+    assert "seed_fraction = { value = 0.02, uncertainty = 0.005 }" in written
+    assert sc.load(sc.save(scenario, tmp_path / "u.toml")) == scenario and sc.loads(written) == scenario
+    assert hash(sc.loads(written)) == hash(scenario) and {scenario: 1}[sc.loads(written)] == 1
+    kept = scenario.replace("trap", gradient=120.0)
+    assert kept.uncertainties == scenario.uncertainties
+    plain = scenario.replace("beam", pressure=2.0e5)
+    assert dict(plain.uncertainties) == {"beam.seed_fraction": 0.005} and plain.beam.pressure == 2.0e5
+    assert plain != scenario and hash(plain) != hash(scenario)
+
+
+def test_listing_states_the_uncertainty_syntax() -> None:
+    assert "key = { value = X, uncertainty = U }" in sc.describe().splitlines()[-1]
+
+
+@pytest.mark.parametrize(
+    ("section", "name", "value", "words"),
+    [
+        ("beam", "temperature", {"value": 300.0, "uncertainty": -1.0},
+         ["[beam] temperature uncertainty [K]", "[0, inf)", "-1.0"]),
+        ("beam", "temperature", {"value": 300.0, "relative": -0.1},
+         ["[beam] temperature relative uncertainty", "[0, inf)", "-0.1"]),
+        ("beam", "temperature", {"value": -300.0, "uncertainty": 1.0}, ["[beam] temperature [K]", "(0, 5000]"]),
+        ("beam", "temperature", {"value": 300.0}, ["[beam] temperature [K]", "{ value = X, uncertainty = U }"]),
+        ("beam", "temperature", {"value": 300.0, "uncertainty": 1.0, "relative": 0.1},
+         ["[beam] temperature [K]", "{ value = X, relative = R }"]),
+        ("beam", "temperature", {"value": 300.0, "uncertanty": 1.0},
+         ["unknown field 'uncertanty'", "[beam] temperature", "did you mean 'uncertainty'"]),
+        ("beam", "temperature", {"value": 300.0, "uncertainty": "big"}, ["[beam] temperature uncertainty", "big"]),
+        ("beam", "apertures", {"value": [[0.2, 3e-3]], "uncertainty": 1e-4},
+         ["[beam] apertures cannot carry an uncertainty", "[distance, diameter] pairs"]),
+        ("beam", "gas", {"value": "Kr", "uncertainty": 1.0}, ["[beam] gas cannot carry an uncertainty", "text"]),
+        ("simulation", "particles", {"value": 1000, "uncertainty": 10},
+         ["[simulation] particles cannot carry an uncertainty", "integer"]),
+        ("simulation", "track", {"value": True, "uncertainty": 0.1}, ["[simulation] track cannot carry"]),
+    ],
+    ids=["negative", "negative-relative", "value-out-of-range", "no-uncertainty", "both-forms", "misspelt-field",
+         "uncertainty-as-text", "list-key", "text-key", "integer-key", "boolean-key"],
+)
+def test_uncertainty_errors_name_the_key(section: str, name: str, value: object, words: list[str]) -> None:
+    data = sc.load(DEMO).to_dict()
+    data[section][name] = value
+    with pytest.raises(TiltwellError) as caught:
+        sc.from_dict(data)
+    for word in words:
+        assert word in str(caught.value)
+
+
+def test_zero_uncertainty_is_kept_as_given() -> None:
+    scenario = sc.loads(_plain_demo_text()).replace("trap", gradient={"value": 100.0, "uncertainty": 0.0})
+    assert dict(scenario.uncertainties) == {"trap.gradient": 0.0}
+    assert sc.loads(sc.dumps(scenario)) == scenario

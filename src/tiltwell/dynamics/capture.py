@@ -29,6 +29,7 @@ from ..physics.beam import Beam
 from ..physics.fields import IdealQuadrupole
 from ..wells.overlap import energetic_fraction, plane_product_fraction
 from ..coils.schedule import arrival_times
+from .spinflip import SpinFlips
 from .tracking import FieldMap, TrackingResult, track
 from ..wells.traps import Trap
 
@@ -119,6 +120,7 @@ def capture_estimates(
     samples: int = 2001,
     switch_on_time: float = 0.0,
     progress: bool = False,
+    spin_flips: SpinFlips | bool | None = None,
 ) -> CaptureEstimates:
     """Captured fraction of ``beam`` in ``trap`` decelerating at ``deceleration`` [m/s^2]
     for ``duration`` [s], three ways (see the module notes for how they differ).
@@ -141,6 +143,10 @@ def capture_estimates(
         The trap depth ramps up linearly over this time [s] (0: on at once). Only the
         trajectories see it; the overlap and energetic estimates assume a trap that is
         fully on.
+    spin_flips : SpinFlips or bool, optional
+        Passed to :func:`~tiltwell.dynamics.tracking.track` (off by default): the loss
+        channel is in ``tracking`` (``spin_flip_loss``, ``kept_after_flips``); ``tracked``
+        counts the walls only.
     """
     a = as_scalar(deceleration, "deceleration", "m/s^2")
     duration = as_scalar(duration, "duration", "s", low=0.0, low_open=True)
@@ -165,7 +171,7 @@ def capture_estimates(
     field_map = None if isinstance(trap.source, IdealQuadrupole) else FieldMap.from_trap(trap)
     ramp = None if switch_on_time == 0.0 else (lambda t: min(max(t / switch_on_time, 0.0), 1.0))
     result = track(trap, sample, duration, step, deceleration=a, method=method, field_map=field_map,
-                   ramp=ramp, progress=progress)
+                   ramp=ramp, progress=progress, spin_flips=spin_flips)
     return CaptureEstimates(
         overlap, energetic, energetic_error, result.fraction, result.binomial_error, int(particles), acceptance, result,
         sample,

@@ -38,6 +38,10 @@ class TrackingResult:
         The integration method.
     time_step : float
         The step used [s]: ``duration / ceil(duration / time_step)``.
+    survival_weights : ndarray, shape (N,), or None
+        With the spin-flip check on (``track(..., spin_flips=...)``): the probability that
+        each particle has not flipped, up to the end or to its leaving the box; None when off.
+        :attr:`fraction`, ``survival`` and ``kept`` count the walls only.
 
     Examples
     --------
@@ -54,6 +58,7 @@ class TrackingResult:
     lost_time: FloatArray
     method: str
     time_step: float
+    survival_weights: FloatArray | None = None
 
     @property
     def fraction(self) -> float:
@@ -66,6 +71,33 @@ class TrackingResult:
         p = self.fraction
         return math.sqrt(p * (1.0 - p) / self.kept.size)
 
+    @property
+    def spin_flip_loss(self) -> float:
+        """Fraction lost to spin flips, ``mean(1 - w)`` over all particles (NaN with the check off)."""
+        return math.nan if self.survival_weights is None else float(np.mean(1.0 - self.survival_weights))
+
+    @property
+    def spin_flip_error(self) -> float:
+        """Standard error ``std(1 - w) / sqrt(N)`` of :attr:`spin_flip_loss` (the binomial
+        error when every weight is 0 or 1); NaN with the check off."""
+        w = self.survival_weights
+        return math.nan if w is None else float(np.std(1.0 - w) / math.sqrt(w.size))
+
+    @property
+    def kept_after_flips(self) -> float:
+        """Fraction kept by the walls and not flipped, ``mean(kept w)``; :attr:`fraction`
+        with the check off."""
+        w = self.survival_weights
+        return self.fraction if w is None else float(np.mean(np.where(self.kept, w, 0.0)))
+
+    @property
+    def kept_after_flips_error(self) -> float:
+        """Standard error ``std(kept w) / sqrt(N)`` of :attr:`kept_after_flips`."""
+        w = self.survival_weights
+        if w is None:
+            return self.binomial_error
+        return float(np.std(np.where(self.kept, w, 0.0)) / math.sqrt(w.size))
+
     def _repr_html_(self) -> str:
         rows = [
             ("particles", f"{self.kept.size}"),
@@ -73,11 +105,16 @@ class TrackingResult:
             ("duration", f"{self.times[-1] * 1e3:.4g} ms"),
             ("method, step", f"{self.method}, {self.time_step * 1e6:.4g} µs"),
         ]
+        if self.survival_weights is not None:
+            rows[2:2] = [
+                ("spin-flip loss", f"{self.spin_flip_loss:.4g} ± {self.spin_flip_error:.2g}"),
+                ("kept, not flipped", f"{self.kept_after_flips:.4g} ± {self.kept_after_flips_error:.2g}"),
+            ]
         return html_table("Tracking", rows)
 
 
 def tracking_result(final: FloatArray, lost_step: NDArray[np.int64], steps: int, time_step: float, every: int,
-                    method: str) -> TrackingResult:
+                    method: str, *, weights: FloatArray | None = None) -> TrackingResult:
     """Assemble the :class:`TrackingResult` of a run of ``steps`` steps of ``time_step`` [s].
 
     Parameters
@@ -96,6 +133,8 @@ def tracking_result(final: FloatArray, lost_step: NDArray[np.int64], steps: int,
         Steps between recorded survival values, >= 1 (the end is always recorded).
     method : str
         The name stored in ``method``.
+    weights : ndarray, shape (N,), optional
+        Spin-flip survival weights [1] (kept, made read-only), or None with the check off.
     """
     count = lost_step.size
     recorded = np.unique(np.append(np.arange(0, steps + 1, every), steps))
@@ -105,4 +144,6 @@ def tracking_result(final: FloatArray, lost_step: NDArray[np.int64], steps: int,
     arrays = (recorded * time_step, survival, final, kept, lost_time)
     for array in arrays:
         array.setflags(write=False)
-    return TrackingResult(*arrays, method, time_step)
+    if weights is not None:
+        weights.setflags(write=False)
+    return TrackingResult(*arrays, method, time_step, weights)

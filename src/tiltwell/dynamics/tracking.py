@@ -37,8 +37,9 @@ from .fieldmap import FieldMap
 from .integrators import SplittingScheme, integrator
 from .kernels import ForceKernel, force_kernel
 from .results import TrackingResult, tracking_result
+from .spinflip import SpinFlipCheck, SpinFlips
 
-__all__ = ["FieldMap", "TrackingResult", "track"]
+__all__ = ["FieldMap", "SpinFlips", "TrackingResult", "track"]
 
 FloatArray = NDArray[np.float64]
 Profile = Callable[[float], float]
@@ -60,6 +61,7 @@ def track(
     chunk: int = 100_000,
     record_every: int = 1,
     progress: bool = False,
+    spin_flips: SpinFlips | bool | None = None,
 ) -> TrackingResult:
     """Track particles in the frame of a decelerating trap until they leave its box.
 
@@ -92,6 +94,13 @@ def track(
         Steps between entries of ``times`` and ``survival``, >= 1 (the end is always one).
     progress : bool
         Show a tqdm progress bar over chunks x steps.
+    spin_flips : SpinFlips or bool, optional
+        Off by default (None or False: the run is the same, bit for bit). True or a
+        :class:`~tiltwell.dynamics.spinflip.SpinFlips` checks every step for a close pass
+        by the field zero and multiplies each particle's survival weight by its
+        Landau–Zener survival (:mod:`tiltwell.dynamics.spinflip`); the trajectories do not
+        change, and the result's ``survival_weights``, ``spin_flip_loss`` and
+        ``kept_after_flips`` report the loss channel.
 
     Returns
     -------
@@ -136,17 +145,23 @@ def track(
     moments = scheme.force_times(steps, dt)
     tilts = _profile(deceleration, "deceleration", "m/s^2", moments, -math.inf, math.inf)
     scales = np.ones(moments.size) if ramp is None else _profile(ramp, "ramp", "1", moments, 0.0, 1.0, needs_callable=True)
+    if isinstance(spin_flips, (bool, np.bool_)):
+        spin_flips = SpinFlips() if spin_flips else None
+    if spin_flips is not None and not isinstance(spin_flips, SpinFlips):
+        raise TiltwellError(f"spin_flips must be a SpinFlips, True, False or None; got {spin_flips!r}")
+    flips = None if spin_flips is None else spin_flips.check(trap, field_map, scales[:: scheme.evaluations], dt)
+    weights = np.ones(state.shape[0]) if flips is not None else None
 
     count = state.shape[0]
     final = state.copy()
     lost_step = np.full(count, steps + 1, dtype=np.int64)
     lower, upper = (np.array([pair[k] for pair in trap.bounds])[:, None] for k in (0, 1))
-    stepper = _Stepper(force_kernel(trap, field_map), scheme, dt, tilts, scales, lower, upper, steps)
+    stepper = _Stepper(force_kernel(trap, field_map), scheme, dt, tilts, scales, lower, upper, steps, flips)
     with progress_bar(shown, math.ceil(count / size) * steps) as bar:
         for start in range(0, count, size):
             stop = min(start + size, count)
-            stepper.run(state[start:stop], start, steps, final, lost_step, bar)
-    return tracking_result(final, lost_step, steps, dt, every, method)
+            stepper.run(state[start:stop], start, steps, final, lost_step, bar, weights)
+    return tracking_result(final, lost_step, steps, dt, every, method, weights=weights)
 
 
 class _Stepper:
@@ -161,7 +176,7 @@ class _Stepper:
 
     def __init__(
         self, kernel: ForceKernel, scheme: SplittingScheme, dt: float, tilts: FloatArray, scales: FloatArray,
-        lower: FloatArray, upper: FloatArray, steps: int,
+        lower: FloatArray, upper: FloatArray, steps: int, flips: SpinFlipCheck | None = None,
     ) -> None:
         k = scheme.kicks
         weights = np.concatenate([[k[0]], np.tile(np.append(k[1:-1], k[-1] + k[0]), steps)]) * dt * dt
@@ -169,6 +184,7 @@ class _Stepper:
         self.pulls, self.pushes = (weights * scales).tolist(), (weights * tilts).tolist()
         self.back = k[0] / (k[-1] + k[0])  # share of a merged kick that belongs to the next step
         self.lower, self.upper = lower, upper
+        self.flips = flips  # the spin-flip check, or None (off)
 
     def inside(self, positions: FloatArray, flags: NDArray[np.bool_]) -> NDArray[np.bool_]:
         """Whether each particle is strictly inside the box; ``flags`` (2, 3, n) is scratch."""
@@ -192,10 +208,12 @@ class _Stepper:
         return state
 
     def run(
-        self, initial: FloatArray, start: int, steps: int, final: FloatArray, lost_step: NDArray[np.int64], bar: Any
+        self, initial: FloatArray, start: int, steps: int, final: FloatArray, lost_step: NDArray[np.int64], bar: Any,
+        weights: FloatArray | None = None,
     ) -> None:
         """Integrate ``initial`` (n, 6), particles ``start...`` of the whole set, writing
-        ``final`` and ``lost_step`` for them; ``bar`` is a progress bar or None."""
+        ``final`` and ``lost_step`` for them; ``bar`` is a progress bar or None; with the
+        spin-flip check on, ``weights`` (N,) gets their survival weights."""
         n = initial.shape[0]
         rows = np.ascontiguousarray(initial.T)
         rows[3:] *= self.dt
@@ -209,6 +227,9 @@ class _Stepper:
         alive = np.ones(living, dtype=bool)
         acceleration = np.empty((3, living))
         self.kick(rows, acceleration, buffers[:2, :living], 0)
+        flips = self.flips
+        if flips is not None:
+            field, weight = flips.start(rows[:3])
         drifts, moment = self.drifts, 0
         for step in range(steps):
             if living == 0:
@@ -225,6 +246,8 @@ class _Stepper:
                     rows[:3] += change
                 moment += 1
                 self.kick(rows, acceleration, scratch, moment)
+            if flips is not None:
+                field = flips.step(rows[:3], field, weight, step)
             inside = self.inside(rows[:3], flags[:, :, :width])
             if riders:
                 inside &= alive
@@ -232,15 +255,21 @@ class _Stepper:
                 leaving = np.flatnonzero(alive & ~inside)
                 final[index[leaving]] = self.synchronised(rows[:, leaving], acceleration[:, leaving], moment)
                 lost_step[index[leaving]] = step + 1
+                if weights is not None:
+                    weights[index[leaving]] = weight[leaving]
                 alive[leaving] = False
                 living -= leaving.size
                 riders += leaving.size
                 if riders > self.kernel.compact_fraction * width:
                     rows, acceleration = np.compress(alive, rows, axis=1), np.compress(alive, acceleration, axis=1)
+                    if flips is not None:
+                        field, weight = np.compress(alive, field, axis=1), weight[alive]
                     index, alive, riders = index[alive], alive[alive], 0
             if bar is not None:
                 bar.update(1)
         final[index[alive]] = self.synchronised(rows[:, alive], acceleration[:, alive], moment)
+        if weights is not None:
+            weights[index[alive]] = weight[alive]
 
 
 def _profile(

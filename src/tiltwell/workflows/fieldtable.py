@@ -16,7 +16,7 @@ from numpy.typing import ArrayLike, NDArray
 from scipy.interpolate import RectBivariateSpline
 
 from .._base.validation import TiltwellError, as_integer, as_points, as_scalar
-from ..physics.fields import FieldSource
+from ..physics.fields import FieldSource, IdealQuadrupole
 
 __all__ = ["TABLE_SHAPE", "AxisymmetricTable", "table_points"]
 
@@ -152,7 +152,14 @@ class AxisymmetricTable:
             unit_y = np.where(rho > 0.0, y / rho, 0.0)
         return np.column_stack([d_rho * unit_x, d_rho * unit_y, d_z])
 
+    @property
+    def near_zero(self) -> IdealQuadrupole:
+        """The linear field of the zero, ``B' (-x/2, -y/2, z)`` with ``B'`` the axial
+        gradient: the field vector where spin flips happen (within microns of the zero),
+        which the tracker's spin-flip check uses (:mod:`tiltwell.dynamics.spinflip`)."""
+        return IdealQuadrupole(self.axial_gradient)
+
     def field(self, points: ArrayLike) -> FloatArray:
-        """Not available: the table holds |B| only."""
+        """Not available: the table holds |B| only (see :attr:`near_zero`)."""
         raise TiltwellError("an AxisymmetricTable holds |B| only; use the source it was built from for the field vector")
 

@@ -7,18 +7,24 @@ each value with :meth:`KeySpec.convert`, which hands it to the one validation he
 keys (``tiltwell keys``) prints :meth:`KeySpec.describe`. The allowed range is an
 :class:`~tiltwell._base.validation.Interval`, so messages and the listing print the same
 range text.
+
+A real-number key may carry a standard uncertainty (:data:`UNCERTAINTY_SYNTAX`): the
+section keeps the nominal value, and the scenario keeps the uncertainties apart in an
+:class:`Uncertainties` (:meth:`KeySpec.convert_uncertain` reads both).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import difflib
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
 
 from .._base.validation import (
     Interval,
+    TiltwellError,
     as_boolean,
     as_choice,
     as_integer,
@@ -28,13 +34,25 @@ from .._base.validation import (
     as_text,
 )
 
-__all__ = ["Kind", "KeySpec", "key", "spec_of"]
+__all__ = ["Kind", "KeySpec", "UNCERTAINTY_SYNTAX", "Uncertainties", "key", "spec_of"]
 
 #: What a key holds; each kind names one converter of the validation helper.
 Kind = Literal["number", "integer", "even integer", "boolean", "text", "choice", "triple", "pairs"]
 
 #: Where :func:`key` stores the specification in a dataclass field's metadata.
 _METADATA = "tiltwell.key"
+
+#: How a file gives an uncertain input, in the words of ``tiltwell keys``.
+UNCERTAINTY_SYNTAX = ("a real-number key may carry a standard uncertainty (Gaussian, one sigma, in the key's unit): "
+                      "key = { value = X, uncertainty = U }, or key = { value = X, relative = R } for U = R |X|; "
+                      "sampling keeps to the key's range (the Gaussian truncated there)")
+
+#: What a key that may not carry an uncertainty holds, in words.
+_HOLDS = {"integer": "an integer", "even integer": "an even integer", "boolean": "true or false", "text": "text",
+          "choice": "one of its choices", "triple": "three numbers", "pairs": "a list of pairs"}
+
+#: The fields of an uncertain input's inline table; the last two exclude each other.
+_UNCERTAIN_FIELDS = ("value", "uncertainty", "relative")
 
 
 @dataclass(frozen=True)
@@ -77,6 +95,38 @@ class KeySpec:
         :class:`~tiltwell._base.validation.TiltwellError` naming ``label``, the unit, the
         range and the value."""
         return _CONVERTERS[self.kind](self, label, value)
+
+    def convert_uncertain(self, label: str, value: Any) -> tuple[Any, float | None]:
+        """``(nominal, standard uncertainty)`` of a value that may be an uncertain input
+        (:data:`UNCERTAINTY_SYNTAX`); the uncertainty is None for a plain value, and is in
+        the key's unit. The nominal value is checked like a plain one; an uncertainty on a
+        key that is not one real number (an integer, a list, ...), a negative one, or a
+        missing or unknown field of the table is a
+        :class:`~tiltwell._base.validation.TiltwellError` naming ``label``.
+
+        >>> spec_of(key("number", "Pa", "a pressure", 0.0, 1e8)).convert_uncertain("p", {"value": 2e5, "relative": 0.1})
+        (200000.0, 20000.0)
+        """
+        if not isinstance(value, Mapping):
+            return self.convert(label, value), None
+        unit = f" [{self.unit}]" if self.unit else ""
+        if self.kind != "number":
+            holds = self.form or _HOLDS[self.kind]
+            raise TiltwellError(f"{label} cannot carry an uncertainty: only a key holding one real number can "
+                                f"(this one holds {holds}); got {value!r}")
+        for name in value:
+            if name not in _UNCERTAIN_FIELDS:
+                close = difflib.get_close_matches(str(name), _UNCERTAIN_FIELDS, n=1)
+                hint = f"; did you mean '{close[0]}'?" if close else f"; known: {', '.join(_UNCERTAIN_FIELDS)}"
+                raise TiltwellError(f"unknown field '{name}' of the uncertain input {label}{hint}")
+        if "value" not in value or ("uncertainty" in value) == ("relative" in value):
+            raise TiltwellError(f"{label}{unit} as an uncertain input must be {{ value = X, uncertainty = U }} or "
+                                f"{{ value = X, relative = R }}; got {value!r}")
+        nominal = self.convert(label, value["value"])
+        if "uncertainty" in value:
+            return nominal, as_scalar(value["uncertainty"], f"{label} uncertainty", self.unit, low=0.0, strict=True)
+        relative = as_scalar(value["relative"], f"{label} relative uncertainty", "", low=0.0, strict=True)
+        return nominal, relative * abs(nominal)
 
     def describe(self, name: str) -> str:
         """One listing line: ``name [unit] in (0, 1] (default 0.6): meaning``, or
@@ -138,3 +188,35 @@ def spec_of(item: dataclasses.Field[Any]) -> KeySpec:
     spec = item.metadata[_METADATA]
     assert isinstance(spec, KeySpec)
     return spec
+
+
+@dataclass(frozen=True)
+class Uncertainties(Mapping[str, float]):
+    """The standard uncertainties of a scenario's inputs: ``"section.key"`` -> uncertainty
+    in the key's unit. Read-only, hashable and compared by content (the entries are kept
+    sorted), so a :class:`~tiltwell.workflows.scenario.Scenario` holding one stays equal,
+    hashable and usable as a cache key.
+
+    >>> u = Uncertainties({"beam.pressure": 3e4})
+    >>> u["beam.pressure"], dict(u) == {"beam.pressure": 3e4}, u == Uncertainties((("beam.pressure", 3e4),))
+    (30000.0, True, True)
+    """
+
+    entries: tuple[tuple[str, float], ...] = ()
+
+    def __init__(self, entries: Mapping[str, float] | tuple[tuple[str, float], ...] = ()) -> None:
+        pairs = entries.items() if isinstance(entries, Mapping) else entries
+        object.__setattr__(self, "entries", tuple(sorted((str(name), float(u)) for name, u in pairs)))
+
+    def __getitem__(self, name: str) -> float:
+        for known, uncertainty in self.entries:
+            if known == name:
+                return uncertainty
+        raise KeyError(name)
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(name for name, _ in self.entries)
+
+    def __len__(self) -> int:
+        return len(self.entries)
+

@@ -1,6 +1,6 @@
 """Scenario files: a whole planning case in one TOML file, validated on load.
 
-Five sections and an optional sixth, every key with its unit and allowed range
+Five sections and optional others, every key with its unit and allowed range
 (``tiltwell.workflows.scenario.describe()`` prints them all):
 
 ``[species]`` the particle; ``[trap]`` the trap (an ideal quadrupole of finite depth, or an
@@ -9,7 +9,10 @@ anti-Helmholtz coil pair) and its box; ``[beam]`` the source and flight path;
 coil-array pitch and current pulse for the timing table; ``[simulation]`` sample size,
 seed and numerics; optionally ``[coils]``, the real coil row of the decelerator (winding,
 current limit, number of active coils, waveform table step): where given, every number of
-the scenario comes from that row (:mod:`tiltwell.workflows.devicemodel`).
+the scenario comes from that row (:mod:`tiltwell.workflows.devicemodel`); ``[hold]`` a hold
+in the stopped trap; ``[limits]`` the hardware ratings. A real-number key may carry an
+uncertainty, ``{ value = X, uncertainty = U }`` (:data:`~tiltwell.workflows.keys.UNCERTAINTY_SYNTAX`):
+the section holds X, :attr:`Scenario.uncertainties` holds U, and saving writes the same form.
 
 Every key is declared with its :class:`~tiltwell.workflows.keys.KeySpec` (kind, unit, range,
 default), and loading converts each value through the one validation helper
@@ -36,17 +39,19 @@ from .._base.files import atomic_write_text
 from .._base.validation import TiltwellError
 from ..coils.drive import DEFAULT_HEAT_TRANSFER, DEFAULT_REPETITION_RATE
 from ..physics.limits import HardwareLimits
-from .keys import key, spec_of
+from .keys import UNCERTAINTY_SYNTAX, Uncertainties, key, spec_of
 
 __all__ = [
     "BeamSection",
     "CoilsSection",
     "DecelerationSection",
+    "HoldSection",
     "LimitsSection",
     "Scenario",
     "SimulationSection",
     "SpeciesSection",
     "TrapSection",
+    "Uncertainties",
     "box_half_widths",
     "describe",
     "load",
@@ -97,6 +102,15 @@ class BeamSection:
         "pairs", "m", "further apertures as [[distance from nozzle, diameter], ...]", 0.0, 100.0, default=(),
         open_low=True, form="a list of [distance, diameter] pairs")
     mismatch: float = key("number", "m/s", "trap velocity minus beam velocity at switch-on", -1e4, 1e4, default=0.0)
+    pressure: float | None = key("number", "Pa", "nozzle stagnation pressure, for absolute numbers of particles (give "
+                                 "with seed_fraction; left out: fractions only)", 0.0, 1e8, open_low=True)
+    seed_fraction: float | None = key("number", "", "mole fraction of the species in the gas (1: the gas is the "
+                                      "species alone; give with pressure)", 0.0, 1.0, open_low=True)
+    peaking_factor: float | None = key("number", "", "centre-line peaking factor of the free jet (default: by the "
+                                       "gas's heat-capacity ratio)", 0.0, 10.0, open_low=True)
+    rotational_temperature: float | None = key("number", "K", "rotational temperature of the species in the beam, "
+                                               "for the share in the trapped state (default: all in that state)",
+                                               0.0, 1000.0, open_low=True)
 
 
 @dataclass(frozen=True)
@@ -131,6 +145,18 @@ class SimulationSection:
                              "row's phase-averaged rigid trap, or \"row\", the time-dependent row itself "
                              "(lab frame; measured on the demo: 6.5e3 particles/s through the row, 2.1e4/s through the twin)",
                              default="twin", choices=("twin", "row"))
+    spin_flips: bool = key("boolean", "", "count non-adiabatic spin flips at the field zero as a loss in the tracked "
+                           "estimate", default=False)
+
+
+@dataclass(frozen=True)
+class HoldSection:
+    """A hold in the stopped trap after the deceleration, in a background gas."""
+
+    time: float = key("number", "s", "hold time in the stopped trap after the deceleration", 0.0, 1e4, required=True)
+    vacuum_pressure: float = key("number", "Pa", "background-gas pressure during the hold", 0.0, 1e5, default=0.0)
+    vacuum_temperature: float = key("number", "K", "background-gas temperature", 0.0, 1000.0, open_low=True,
+                                    default=295.0)
 
 
 @dataclass(frozen=True)
@@ -202,20 +228,24 @@ _SECTIONS: dict[str, type] = {
     "deceleration": DecelerationSection,
     "simulation": SimulationSection,
     "coils": CoilsSection,
+    "hold": HoldSection,
     "limits": LimitsSection,
 }
 
 #: Sections that may be left out, and what they default to.
-_OPTIONAL: dict[str, Any] = {"simulation": {}, "coils": None, "limits": {}}
+_OPTIONAL: dict[str, Any] = {"simulation": {}, "coils": None, "hold": None, "limits": {}}
 
 #: What :func:`describe` says about a section besides its keys.
 _NOTES: dict[str, str] = {"coils": " ".join(str(CoilsSection.__doc__).split()),
-                         "limits": " ".join(str(LimitsSection.__doc__).split())}
+                         "hold": str(HoldSection.__doc__), "limits": " ".join(str(LimitsSection.__doc__).split())}
 
 
 @dataclass(frozen=True)
 class Scenario:
-    """A validated planning case. Build it with :func:`load` or :func:`loads`."""
+    """A validated planning case. Build it with :func:`load` or :func:`loads`.
+
+    ``uncertainties`` maps ``"section.key"`` to the standard uncertainty of that input in
+    the key's unit (the section holds the nominal value); empty when no input has one."""
 
     species: SpeciesSection
     trap: TrapSection
@@ -223,22 +253,30 @@ class Scenario:
     deceleration: DecelerationSection
     simulation: SimulationSection = SimulationSection()
     coils: CoilsSection | None = None
+    hold: HoldSection | None = None
     limits: LimitsSection = LimitsSection()
+    uncertainties: Uncertainties = Uncertainties()
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
         """Plain nested dict of the given values (None omitted, tuples as lists), as written
-        to TOML."""
+        to TOML; an uncertain input is ``{"value": X, "uncertainty": U}``."""
         out: dict[str, dict[str, Any]] = {}
         for name in _SECTIONS:
             section = getattr(self, name)
             if section is not None:
-                out[name] = {item.name: _plain(getattr(section, item.name)) for item in dataclasses.fields(section)
-                             if getattr(section, item.name) is not None}
+                out[name] = {item.name: self._entry(f"{name}.{item.name}", getattr(section, item.name))
+                             for item in dataclasses.fields(section) if getattr(section, item.name) is not None}
         return out
+
+    def _entry(self, where: str, value: Any) -> Any:
+        if where in self.uncertainties:
+            return {"value": value, "uncertainty": self.uncertainties[where]}
+        return _plain(value)
 
     def replace(self, section: str, **changes: Any) -> Scenario:
         """A copy with keys of one section changed (None removes a key), validated like a
-        loaded file."""
+        loaded file. A plain value replaces the key's uncertainty too; give
+        ``{"value": X, "uncertainty": U}`` to set one."""
         data = self.to_dict()
         if section not in _SECTIONS:
             raise _unknown("section", f"[{section}]", [f"[{known}]" for known in _SECTIONS])
@@ -270,6 +308,7 @@ def from_dict(data: Mapping[str, Any]) -> Scenario:
         if name not in _SECTIONS:
             raise _unknown("section", f"[{name}]", [f"[{known}]" for known in _SECTIONS])
     sections: dict[str, Any] = {}
+    uncertain: dict[str, float] = {}
     for name, cls in _SECTIONS.items():
         raw = data.get(name, _OPTIONAL.get(name))
         if raw is None:
@@ -286,11 +325,13 @@ def from_dict(data: Mapping[str, Any]) -> Scenario:
         values = {}
         for key_name, spec in specs.items():
             if key_name in raw:
-                values[key_name] = spec.convert(f"[{name}] {key_name}", raw[key_name])
+                values[key_name], uncertainty = spec.convert_uncertain(f"[{name}] {key_name}", raw[key_name])
+                if uncertainty is not None:
+                    uncertain[f"{name}.{key_name}"] = uncertainty
             elif spec.required:
                 raise TiltwellError(f"[{name}] {key_name} is required ({spec.doc})")
         sections[name] = cls(**values)
-    scenario = Scenario(**sections)
+    scenario = Scenario(**sections, uncertainties=Uncertainties(uncertain))
     _check_together(scenario)
     return scenario
 
@@ -314,6 +355,9 @@ def _check_together(s: Scenario) -> None:
         if getattr(s.trap, name) is not None:
             raise TiltwellError(f"[trap] {name} does not apply when kind = \"{s.trap.kind}\"")
     _exactly_one("beam", "speed_ratio", "relative_spread", s.beam.speed_ratio, s.beam.relative_spread)
+    if (s.beam.pressure is None) != (s.beam.seed_fraction is None):
+        raise TiltwellError("[beam] give both pressure [Pa] and seed_fraction [1] for absolute numbers of particles "
+                            "(seed_fraction = 1.0 for a beam of the species alone), or neither")
     _exactly_one("deceleration", "deceleration", "length", s.deceleration.deceleration, s.deceleration.length)
     if (s.deceleration.pitch is None) != (s.deceleration.peak_current is None):
         raise TiltwellError("[deceleration] give both pitch [m] and peak_current [A] for the timing table, or neither")
@@ -369,8 +413,13 @@ def load(path: str | os.PathLike[str]) -> Scenario:
 
 
 def dumps(scenario: Scenario) -> str:
-    """The scenario as TOML text."""
-    return tomli_w.dumps(scenario.to_dict())
+    """The scenario as TOML text, an uncertain input as an inline table on one line."""
+    chunks = []
+    for name, table in scenario.to_dict().items():
+        lines = [f"{key_name} = {{ {', '.join(tomli_w.dumps(value).strip().splitlines())} }}\n"
+                 if isinstance(value, Mapping) else tomli_w.dumps({key_name: value}) for key_name, value in table.items()]
+        chunks.append(f"[{name}]\n" + "".join(lines))
+    return "\n".join(chunks)
 
 
 def save(scenario: Scenario, path: str | os.PathLike[str]) -> Path:
@@ -387,4 +436,5 @@ def describe() -> str:
         if name in _NOTES:
             lines.append(f"  {_NOTES[name]}")
         lines.extend(f"  {spec_of(item).describe(item.name)}" for item in dataclasses.fields(cls))
+    lines.append(UNCERTAINTY_SYNTAX[0].upper() + UNCERTAINTY_SYNTAX[1:] + ".")
     return "\n".join(lines)
