@@ -2,9 +2,11 @@
 
 A Zeeman model maps the field magnitude ``|B|`` [T] to the energy ``W`` [J] of one
 low-field-seeking state, measured from that state's own zero-field energy, so
-``energy(0) == 0`` for every model. Three models are given: a constant moment
+``energy(0) == 0`` for every model. Four models are given: a constant moment
 (:class:`LinearZeeman`), the Breit–Rabi formula for a ``J = 1/2`` hyperfine state
-(:class:`BreitRabi`) and a user table (:class:`TabulatedZeeman`). Any object with the two
+(:class:`BreitRabi`), one eigenvalue of a field-dependent Hamiltonian matrix
+(:class:`MatrixZeeman`) and a user table (:class:`TabulatedZeeman`). The Wigner 3-j and 6-j
+symbols (:func:`wigner_3j`, :func:`wigner_6j`) build such matrices. Any object with the two
 methods of :class:`ZeemanModel` works wherever a model is expected.
 
 Shapes: ``energy`` and ``derivative`` accept a scalar or an array of any shape and return a
@@ -21,7 +23,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.interpolate import PchipInterpolator
 
-from .._base.validation import TiltwellError, as_finite_array, as_increasing, as_scalar
+from .._base.validation import TiltwellError, as_finite_array, as_increasing, as_integer, as_scalar
 from .constants import BOHR_MAGNETON, ELECTRON_G
 
 __all__ = [
@@ -29,6 +31,9 @@ __all__ = [
     "LinearZeeman",
     "BreitRabi",
     "TabulatedZeeman",
+    "MatrixZeeman",
+    "wigner_3j",
+    "wigner_6j",
     "STRONG_FIELD",
     "half_integer_text",
 ]
@@ -276,4 +281,110 @@ class TabulatedZeeman:
         end = self.fields[-1]
         return np.asarray(np.where(b <= end, self._slope(np.minimum(b, end)), self._end_slope), dtype=np.float64)
 
+
+
+
+class MatrixZeeman:
+    """One adiabatic level of ``H(B) = H0 + |B| H1``: eigenvalue number ``index`` (ascending).
+
+    Within a block of fixed total ``M`` (and parity) the levels of ``H(B)`` do not cross
+    (von Neumann–Wigner non-crossing rule), so the ``index``-th eigenvalue is the curve a
+    slowly moving particle follows; pass one such block. Non-adiabatic passage through
+    avoided crossings is not modelled. The slope is the Hellmann–Feynman expectation value
+    ``<v|H1|v>``.
+
+    Parameters
+    ----------
+    zero_field : array_like, shape (d, d)
+        ``H0`` [J], real symmetric.
+    per_tesla : array_like, shape (d, d)
+        ``H1`` [J/T], real symmetric (the Zeeman operator per tesla along the quantisation axis).
+    index : int
+        Which eigenvalue, 0 for the lowest, in ``[0, d)``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> two = MatrixZeeman(np.diag([0.0, 1.0]), np.diag([2.0, -3.0]), 0)
+    >>> float(two.energy(1.0))
+    -2.0
+    """
+
+    def __init__(self, zero_field: ArrayLike, per_tesla: ArrayLike, index: int) -> None:
+        h0 = as_finite_array(zero_field, "zero_field", "J", ndim=2)
+        h1 = as_finite_array(per_tesla, "per_tesla", "J/T", ndim=2)
+        for name, m, unit in (("zero_field", h0, "J"), ("per_tesla", h1, "J/T")):
+            if m.shape[0] != m.shape[1] or m.shape != h0.shape:
+                raise TiltwellError(f"{name} [{unit}] must be square, shape (d, d) like zero_field; got {m.shape}")
+            if not np.allclose(m, m.T, rtol=1e-12, atol=1e-12 * float(np.max(np.abs(m), initial=0.0))):
+                raise TiltwellError(f"{name} [{unit}] must be symmetric; got an asymmetric matrix")
+        self.index = as_integer(index, "index", 0, h0.shape[0] - 1)
+        self.zero_field: Array = np.array(h0)
+        self.per_tesla: Array = np.array(h1)
+        self.zero_field.setflags(write=False)
+        self.per_tesla.setflags(write=False)
+        self.offset = float(np.linalg.eigvalsh(h0)[self.index])
+
+    def __repr__(self) -> str:
+        return f"MatrixZeeman(<{self.zero_field.shape[0]}x{self.zero_field.shape[0]}>, index={self.index})"
+
+    def _solve(self, field: ArrayLike) -> tuple[Array, Array, Array]:
+        b = _as_field(field)
+        values, vectors = np.linalg.eigh(self.zero_field + b.reshape(-1, 1, 1) * self.per_tesla)
+        return b, values[:, self.index], vectors[:, :, self.index]
+
+    def energy(self, field: ArrayLike) -> Array:
+        """Energy [J] relative to the zero-field eigenvalue, same shape as ``field`` [T]."""
+        b, values, _ = self._solve(field)
+        return np.asarray((values - self.offset).reshape(b.shape), dtype=np.float64)
+
+    def derivative(self, field: ArrayLike) -> Array:
+        """Slope dW/d|B| [J/T] (Hellmann–Feynman), same shape as ``field`` [T]."""
+        b, _, v = self._solve(field)
+        slope = np.einsum("ni,ij,nj->n", v, self.per_tesla, v)
+        return np.asarray(slope.reshape(b.shape), dtype=np.float64)
+
+
+def _factorial(x: float) -> float:
+    return float(math.factorial(round(x)))
+
+
+def _triangle(a: float, b: float, c: float) -> float:
+    """Racah's Delta(abc), or 0 when a, b, c break the triangle rule or are not integral."""
+    s = a + b + c
+    if a + b < c or a + c < b or b + c < a or abs(s - round(s)) > 1e-9:
+        return 0.0
+    return math.sqrt(_factorial(a + b - c) * _factorial(a - b + c) * _factorial(-a + b + c) / _factorial(s + 1))
+
+
+def wigner_3j(j1: float, j2: float, j3: float, m1: float, m2: float, m3: float) -> float:
+    """Wigner 3-j symbol ``(j1 j2 j3; m1 m2 m3)`` by Racah's sum (Edmonds, *Angular
+    Momentum in Quantum Mechanics*, eq. 3.7.3); arguments integers or half-integers."""
+    if abs(m1 + m2 + m3) > 1e-9 or any(abs(m) > j + 1e-9 for m, j in ((m1, j1), (m2, j2), (m3, j3))):
+        return 0.0
+    delta = _triangle(j1, j2, j3)
+    if delta == 0.0 or any(abs((j - m) - round(j - m)) > 1e-9 for j, m in ((j1, m1), (j2, m2), (j3, m3))):
+        return 0.0
+    front = math.sqrt(math.prod(_factorial(j + m) * _factorial(j - m) for j, m in ((j1, m1), (j2, m2), (j3, m3))))
+    low = round(max(0, j2 - j3 - m1, j1 - j3 + m2))
+    high = round(min(j1 + j2 - j3, j1 - m1, j2 + m2))
+    total = sum((-1) ** t / (_factorial(t) * _factorial(j3 - j2 + t + m1) * _factorial(j3 - j1 + t - m2)
+                             * _factorial(j1 + j2 - j3 - t) * _factorial(j1 - t - m1) * _factorial(j2 - t + m2))
+                for t in range(low, high + 1))
+    return float((-1) ** round(j1 - j2 - m3) * delta * front * total)
+
+
+def wigner_6j(j1: float, j2: float, j3: float, j4: float, j5: float, j6: float) -> float:
+    """Wigner 6-j symbol ``{j1 j2 j3; j4 j5 j6}`` by Racah's sum (Edmonds, eq. 6.3.7)."""
+    triads = ((j1, j2, j3), (j1, j5, j6), (j4, j2, j6), (j4, j5, j3))
+    deltas = [_triangle(*t) for t in triads]
+    if min(deltas) == 0.0:
+        return 0.0
+    sums = [sum(t) for t in triads]
+    pairs = (j1 + j2 + j4 + j5, j2 + j3 + j5 + j6, j3 + j1 + j6 + j4)
+    total = 0.0
+    for t in range(round(max(sums)), round(min(pairs)) + 1):
+        denominator = math.prod(_factorial(t - s) for s in sums) * math.prod(_factorial(p - t) for p in pairs)
+        total += (-1) ** t * _factorial(t + 1) / denominator
+    return float(math.prod(deltas) * total)
 
