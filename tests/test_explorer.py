@@ -21,6 +21,7 @@ from hypothesis import strategies as st
 import tiltwell as tw
 from tiltwell import scenario as scenario_io
 from tiltwell.explorer import DEMO, Explorer, explore
+from tiltwell.explorer.views import sci
 from tiltwell.workflows.report import build
 
 COILS = (Path(__file__).parent / "data" / "coil_pair.toml").read_text(encoding="utf-8")
@@ -407,6 +408,26 @@ def test_monte_carlo_equals_capture_estimates(app: Explorer) -> None:
     app.controls["deceleration"].value = 0.5 * app.state["critical_deceleration"]
     assert math.isnan(app.state["captured_fraction_mc"])
     assert app.readouts["tracked"].value == "— (Monte-Carlo button)"
+
+
+@pytest.mark.slow
+def test_monte_carlo_is_followed_by_the_yield_budget(app: Explorer) -> None:
+    """After the check, slow particles per shot and the final cloud appear beside the
+    fractions: the numbers of tiltwell.yield_budget for the same scenario and estimates."""
+    app.update(particles=300)
+    estimates = app.run_monte_carlo().result(timeout=120)
+    app.wait()
+    assert estimates is not None
+    scenario = app.scenario()
+    budget = tw.yield_budget(scenario, build(scenario), estimates)
+    assert budget.slow_particles is not None and budget.final_cloud is not None
+    assert app.state["slow_particles"] == pytest.approx(budget.slow_particles, rel=1e-12)
+    assert app.state["final_temperature"] == pytest.approx(budget.final_cloud.temperature, rel=1e-12)
+    shown = app.readouts["slow"].value
+    assert shown.startswith(sci(budget.slow_particles)) and sci(budget.high or 0.0) in shown
+    assert f"{budget.final_cloud.temperature * 1e3:.3g} mK" in app.readouts["final_cloud"].value
+    app.controls["deceleration"].value = 0.5 * app.state["critical_deceleration"]
+    assert math.isnan(app.state["slow_particles"]) and app.readouts["slow"].value.startswith("— (Monte-Carlo")
 
 
 @pytest.mark.slow

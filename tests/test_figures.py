@@ -384,7 +384,7 @@ def test_scenario_figures_writes_every_figure(tmp_path: Path) -> None:
     demo = demo_scenario(detector_distance=0.1)
     written = write_scenario_figures(demo, tmp_path / "out", formats=("svg", "png"), width=3.0, height=2.0,
                                      dpi=100, particles=2000)
-    expected = [tmp_path / "out" / f"{name}.{kind}" for name in [*NAMES, "time-of-flight"] for kind in ("svg", "png")]
+    expected = [tmp_path / "out" / f"{name}.{kind}" for name in [*NAMES, "time-of-flight", "yield-budget"] for kind in ("svg", "png")]
     assert written == expected
     assert all(path.stat().st_size > 0 for path in written)
     assert struct.unpack(">II", (tmp_path / "out" / "survival.png").read_bytes()[16:24]) == (300, 200)
@@ -396,10 +396,11 @@ def test_cli_figures_writes_the_files(tmp_path: Path, capsys: pytest.CaptureFixt
     status = main(["figures", str(path), "--out", str(tmp_path / "figs"), "--formats", "png",
                    "--width", "3", "--height", "2", "--dpi", "40"])
     assert status == 0
-    assert sorted(os.listdir(tmp_path / "figs")) == sorted(f"{name}.png" for name in NAMES)
+    names = [*NAMES, "yield-budget"]  # the demo gives a pressure: absolute numbers
+    assert sorted(os.listdir(tmp_path / "figs")) == sorted(f"{name}.png" for name in names)
     assert struct.unpack(">II", (tmp_path / "figs" / "tradeoff.png").read_bytes()[16:24]) == (120, 80)
     printed = capsys.readouterr().out
-    assert printed.count("wrote ") == len(NAMES)
+    assert printed.count("wrote ") == len(names)
     assert tw.ELECTRICAL_CAUTION in printed  # the demo has a coil row: its current figure sizes hardware
 
 

@@ -18,9 +18,11 @@ from .physics.constants import from_millikelvin, millikelvin
 from .physics.fields import Coil, CoilSet, IdealQuadrupole, anti_helmholtz, loop_field
 from .physics.hardware import ELECTRICAL_CAUTION, HardwareEstimate, hardware_estimate
 from .physics.inductance import mutual_inductance
+from .physics.jet import FreeJet, cone, free_jet
 from .physics.limits import HardwareLimits
 from .physics.source import Aperture, Gas, Source, gas, mixture, terminal_velocity
 from .physics.species import BreitRabi, LinearZeeman, Species, TabulatedZeeman, catalogue, species
+from .physics.states import Populations, ZeemanState, populations, states, trappable_fraction
 from .wells.acceptance import (
     AcceptanceCurve,
     TrapAcceptance,
@@ -38,13 +40,17 @@ from .coils.drive import DriveLoad, drive_load
 from .coils.moving import PhaseScan, moving_trap_phases
 from .coils.schedule import CoilTiming, Schedule, arrival_times, coil_timing, constant_deceleration
 from .dynamics.capture import CaptureEstimates, capture_estimates
+from .dynamics.cloud import CloudStats, cloud_stats
 from .dynamics.compare import DeviceComparison, PhaseAveragedField, compare_device
 from .dynamics.device import CoilFieldMap, UniformMotion, track_device
+from .dynamics.losses import background_gas_rate, hold_survival, majorana_rate
+from .dynamics.spinflip import SpinFlips
 from .dynamics.tracking import FieldMap, TrackingResult, track
 from .workflows import scenario
 from .workflows.report import build, summarise
 from .workflows.scenario import Scenario
 from .workflows.sweep import sweep
+from .workflows.yields import YieldBudget, yield_budget
 
 __version__ = VERSION
 
@@ -64,6 +70,7 @@ __all__ = [
     "Beam",
     "BreitRabi",
     "CaptureEstimates",
+    "CloudStats",
     "Coil",
     "CoilArray",
     "CoilFieldMap",
@@ -76,6 +83,7 @@ __all__ = [
     "EnergeticAcceptance",
     "Explorer",
     "FieldMap",
+    "FreeJet",
     "Gas",
     "HardwareEstimate",
     "HardwareLimits",
@@ -84,45 +92,57 @@ __all__ = [
     "PhaseAveragedField",
     "PhasePlane",
     "PhaseScan",
+    "Populations",
     "Scenario",
     "Schedule",
     "Separatrix",
     "Source",
     "Species",
+    "SpinFlips",
     "TabulatedZeeman",
     "TiltwellError",
     "TrackingResult",
     "Trap",
     "TrapAcceptance",
     "UniformMotion",
+    "YieldBudget",
+    "ZeemanState",
     "acceptance_6d",
     "acceptance_curve",
     "anti_helmholtz",
     "arrival_times",
+    "background_gas_rate",
     "build",
     "capture_estimates",
     "catalogue",
+    "cloud_stats",
     "coil_timing",
     "compare_device",
+    "cone",
     "constant_deceleration",
     "drive_load",
     "energetic_acceptance",
     "energetic_fraction",
     "explore",
+    "free_jet",
     "from_millikelvin",
     "gas",
     "gaussian_fraction",
     "hardware_estimate",
+    "hold_survival",
     "longitudinal_acceptance",
     "loop_field",
+    "majorana_rate",
     "millikelvin",
     "mixture",
     "moving_trap_phases",
     "mutual_inductance",
     "plane_product_fraction",
+    "populations",
     "scenario",
     "separatrix",
     "species",
+    "states",
     "summarise",
     "sweep",
     "terminal_velocity",
@@ -131,5 +151,7 @@ __all__ = [
     "transverse_acceptance",
     "trap_acceptance",
     "trap_currents",
+    "trappable_fraction",
     "waveforms",
+    "yield_budget",
 ]

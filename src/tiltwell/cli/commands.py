@@ -24,6 +24,7 @@ import sys
 from collections.abc import Callable, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -154,9 +155,55 @@ def _print_run(summary: dict[str, object]) -> None:
         else:
             print(f"    trajectories           {number('captured_fraction_mc'):.4g} "
                   f"+- {number('captured_fraction_mc_error'):.2g}  ({int(number('mc_particles'))} particles)")
+    _print_budget(summary)
     if "coils" in summary:
         print(f"  coils                    {int(number('coils'))}")
         print(f"  {summary['caution']}")
+
+
+def _print_budget(summary: dict[str, Any]) -> None:
+    """The yield budget lines of ``tiltwell run`` (keys of :mod:`tiltwell.workflows.yields`)."""
+    def number(key: str) -> float:
+        return _number(summary, key)
+
+    if summary.get("slow_particles") is None:
+        print(f"  in trappable states      {number('trappable_fraction'):.3g} of the particles")
+        print("  slow particles per shot  needs [beam] pressure and seed_fraction")
+    else:
+        print(f"  slow particles per shot  {number('slow_particles'):.3g} (68 %: {number('slow_particles_low'):.3g} "
+              f"to {number('slow_particles_high'):.3g})")
+        per_pulse = number("particles_per_pulse")
+        steps = [("per pulse", per_pulse, "steady free jet over the valve's open time: an upper bound"),
+                 ("in trappable states", per_pulse * number("trappable_fraction"), "low-field seekers"),
+                 ("reaching the trap", number("reaching_trap"), "into the limiting aperture's cone"),
+                 ("captured", number("captured_particles"), summary.get("slow_particles_estimate"))]
+        if number("after_spin_flips") != number("captured_particles"):
+            loss = 1.0 - number("after_spin_flips") / number("captured_particles")
+            steps.append(("after spin flips", number("after_spin_flips"), f"Landau-Zener at the zero: {loss:.2g} lost"))
+        if number("hold_survival") != 1.0:
+            steps.append(("after the hold", number("slow_particles"), f"survival {number('hold_survival'):.3g}"))
+        for label, value, note in steps:
+            print(f"    {label:21s} {value:.3g}  ({note})")
+        others = ", ".join(f"{name} {value:.3g}" for name, value in summary["slow_particles_by_estimate"].items()
+                           if value is not None)
+        print(f"    by each estimate      {others}")
+        print(f"    error parts           statistical {number('slow_particles_statistical'):.2g}, systematic "
+              f"{number('slow_particles_systematic'):.2g} (half the range of the estimates)")
+        found = summary.get("uncertainty")
+        if found:
+            ranked = ", ".join(f"{row['input']} {row['first_order']:.2f}" for row in found["sensitivity"][:3])
+            print(f"    most sensitive inputs {ranked} (first-order share of the variance, "
+                  f"{found['samples']} samples)")
+    if summary.get("final_temperature") is not None:
+        axes = ", ".join(f"{t * 1e3:.3g}" for t in summary["final_temperatures"])
+        line = f"  final cloud              {number('final_temperature') * 1e3:.3g} mK ({axes} mK in x, y, z)"
+        if summary.get("final_density") is not None:
+            line += (f", peak density {number('final_density'):.3g} /m^3, phase-space density "
+                     f"{number('final_phase_space_density'):.2g} (at switch-on "
+                     f"{number('initial_phase_space_density'):.2g})")
+        print(line)
+    for note in summary.get("yield_notes", []):
+        print(f"  note: {note}")
 
 
 def _run(path: str, as_json: bool, progress: bool, timing_path: str | None) -> None:

@@ -38,7 +38,7 @@ import ipywidgets as widgets
 import numpy as np
 
 from . import readouts, views
-from .checks import monte_carlo, monte_carlo_state, tracked_particles, volume_6d
+from .checks import budget_state, monte_carlo, monte_carlo_state, slow_particles, tracked_particles, volume_6d
 from .coilmodel import default_settings as default_coils
 from .coils import CoilPart
 from .model import Model, Picture, Settings, as_scenario
@@ -52,6 +52,7 @@ from .._base.validation import TiltwellError
 from ..dynamics.capture import CaptureEstimates
 from ..workflows.demo import DEMO_SCENARIO
 from ..workflows.scenario import Scenario, save
+from ..workflows.yields import YieldBudget
 
 __all__ = ["DEMO", "Explorer", "explore"]
 
@@ -319,6 +320,12 @@ class Explorer:
             if tracked is not None and self._picture is not None:
                 self._tracked = tracked
                 views.draw(self.sources, self.figures, self.spans, self._picture, self.state["length"], tracked)
+            self._show_readouts()
+            self._start("yield budget", "slow particles per shot", "monte_carlo",
+                        lambda: slow_particles(scenario, estimates), show_budget)
+
+        def show_budget(budget: YieldBudget) -> None:
+            self.state.update(budget_state(budget))
             self._show_readouts()
 
         return self._start("Monte-Carlo check", f"Monte-Carlo check, {scenario.simulation.particles} particles",

@@ -17,7 +17,8 @@ __all__ = ["HEAVY", "page_header", "problems", "state_of", "texts", "warning"]
 
 #: State keys of the heavy checks, cleared (NaN) whenever a setting changes.
 HEAVY = ("acceptance_6d", "captured_fraction_energy", "captured_fraction_energy_error", "captured_fraction_mc",
-         "captured_fraction_mc_error", "mc_particles")
+         "captured_fraction_mc_error", "mc_particles", "slow_particles", "slow_particles_low", "slow_particles_high",
+         "final_temperature", "final_density")
 
 
 def warning(text: str) -> str:
@@ -77,6 +78,19 @@ def texts(state: dict[str, float]) -> dict[str, str]:
             return "— (Monte-Carlo button)"
         return f"{p:.4g} ± {error:.2g} ({state['mc_particles']:.0f} particles)"
 
+    def slow() -> str:
+        n, low, high = (state.get(key, math.nan) for key in ("slow_particles", "slow_particles_low",
+                                                              "slow_particles_high"))
+        if not math.isfinite(n):
+            return "— (Monte-Carlo button; needs [beam] pressure)"
+        return f"{sci(n)} ({sci(low)} to {sci(high)})"
+
+    def cloud() -> str:
+        t, n = state.get("final_temperature", math.nan), state.get("final_density", math.nan)
+        if not math.isfinite(t):
+            return "— (Monte-Carlo button)"
+        return f"{t * 1e3:.3g} mK" + (f", {sci(n * 1e-6)} /cm³" if math.isfinite(n) else "")
+
     critical = state.get("critical_deceleration", math.nan)
     return {
         "critical": f"critical deceleration {sci(critical)} m/s²" if math.isfinite(critical) else "—",
@@ -88,6 +102,8 @@ def texts(state: dict[str, float]) -> dict[str, str]:
         "overlap": value("captured_fraction_overlap", 1.0, ""),
         "energetic": estimate("captured_fraction_energy"),
         "tracked": estimate("captured_fraction_mc"),
+        "slow": slow(),
+        "final_cloud": cloud(),
         "initial_velocity": value("initial_velocity", 1.0, "m/s"),
         "temperature": value("nozzle_temperature", 1.0, "K"),
         "length": value("length", 1.0, "m"),

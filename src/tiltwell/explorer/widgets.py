@@ -58,6 +58,8 @@ READOUTS: tuple[tuple[str, str], ...] = (
     ("overlap", "captured: phase-space overlap"),
     ("energetic", "captured: energetic 6-D count"),
     ("tracked", "captured: trajectories"),
+    ("slow", "slow particles per shot (68 %)"),
+    ("final_cloud", "final cloud: temperature, peak density"),
     ("initial_velocity", "trap velocity at switch-on"),
     ("temperature", "nozzle temperature"),
     ("length", "device length"),

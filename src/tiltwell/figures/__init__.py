@@ -18,12 +18,13 @@ style or marker, so no figure relies on colour alone.
 
 Modules, one kind of figure each: :mod:`.well` (the potential, a phase plane),
 :mod:`.curves` (against deceleration), :mod:`.trajectories` (survival, time of flight),
-:mod:`.device` (the coil row and its device check), :mod:`.sets` (a scenario's named
+:mod:`.device` (the coil row and its device check), :mod:`.budget` (the yield budget), :mod:`.sets` (a scenario's named
 set), :mod:`.style` (the look) and :mod:`.export` (files).
 """
 
 from __future__ import annotations
 
+from .budget import yield_waterfall
 from .curves import acceptance_against_deceleration, tradeoff_plot
 from .device import current_pulses, device_arrivals, device_phase_space, device_survival, phase_scan
 from .export import save, write_figures
@@ -34,4 +35,5 @@ from .well import phase_plane, potential
 
 __all__ = ["PALETTE", "acceptance_against_deceleration", "coil_figures", "current_pulses", "device_arrivals",
            "device_phase_space", "device_survival", "phase_plane", "phase_scan", "potential", "save",
-           "scenario_drawings", "scenario_figures", "survival", "time_of_flight", "tradeoff_plot", "write_figures"]
+           "scenario_drawings", "scenario_figures", "survival", "time_of_flight", "tradeoff_plot", "write_figures",
+           "yield_waterfall"]

@@ -16,6 +16,7 @@ from matplotlib.figure import Figure
 
 from .._base.validation import TiltwellError
 from ..workflows.figure_data import CoilFigureData, ScenarioFigureData
+from .budget import yield_waterfall
 from .curves import acceptance_against_deceleration, tradeoff_plot
 from .device import current_pulses, phase_scan
 from .export import check_export, write_figures
@@ -45,7 +46,8 @@ def scenario_drawings(data: ScenarioFigureData, *, draw_caution: bool = False) -
     drawn sample, kept/lost after tracking), ``acceptance`` and ``tradeoff`` (when the
     trap has a well at rest), ``coil-currents`` and ``coil-phases`` (with ``[coils]``),
     ``survival`` (when the scenario tracks) and ``time-of-flight`` (when it also has a
-    detector distance), in this order. ``draw_caution`` draws the electrical caution on the
+    detector distance), and ``yield-budget`` (with ``[beam] pressure``, when every stage
+    keeps something), in this order. ``draw_caution`` draws the electrical caution on the
     coil-current figure (it is in the files' metadata either way).
     """
     if not isinstance(data, ScenarioFigureData):
@@ -71,6 +73,10 @@ def scenario_drawings(data: ScenarioFigureData, *, draw_caution: bool = False) -
         figures["survival"] = survival(data.tracking)
         if data.arrivals is not None:
             figures["time-of-flight"] = time_of_flight(data.arrivals)
+    budget = data.budget
+    if budget is not None and budget.steps and all(step["number"] > 0 for step in budget.steps):
+        interval = None if budget.low is None or budget.high is None or budget.low <= 0 else (budget.low, budget.high)
+        figures["yield-budget"] = yield_waterfall(budget.steps, interval=interval)
     return figures
 
 

@@ -276,13 +276,20 @@ class Source:
         """Translational temperature along the beam, ``m sigma_v^2 / k`` [K], with the species mass."""
         return self.mass * self.velocity_spread**2 / BOLTZMANN
 
+    @property
+    def limiting_aperture(self) -> tuple[float, float]:
+        """``(diameter, distance)`` [m] of the aperture (skimmer included) with the smallest
+        ``diameter / distance`` seen from the nozzle: it sets the beam's divergence."""
+        limits = [(self.skimmer_diameter, self.nozzle_skimmer_distance)]
+        limits += [(a.diameter, a.distance) for a in self.apertures]
+        return min(limits, key=lambda pair: pair[0] / pair[1])
+
     def beam(self) -> Beam:
         """The Gaussian beam where the trap is switched on (see the class notes)."""
         v0 = self.terminal_velocity
         t = self.arrival_time
         along = PhasePlane.from_sigmas(v0 * self.valve_open_time / math.sqrt(12.0), self.velocity_spread)
-        limits = [(self.skimmer_diameter, self.nozzle_skimmer_distance)]
-        limits += [(a.diameter, a.distance) for a in self.apertures]
-        angle = min(d / 4.0 / distance for d, distance in limits)
+        diameter, distance = self.limiting_aperture
+        angle = diameter / 4.0 / distance
         across = PhasePlane.from_sigmas(self.nozzle_diameter / 4.0, v0 * angle).drift(t)
         return Beam(v0, along.drift(t), across, across)

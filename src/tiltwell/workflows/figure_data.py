@@ -27,6 +27,7 @@ from ..wells.acceptance import AcceptanceCurve, TrapAcceptance, acceptance_curve
 from ..wells.traps import Trap
 from .coilreport import CoilRun, coil_run, coil_scan
 from .report import build, estimate
+from .yields import YieldBudget, yield_budget
 from .scenario import Scenario
 from .sweep import sweep
 
@@ -131,6 +132,9 @@ class ScenarioFigureData:
         Arrival times [s] of the kept particles at ``[simulation] detector_distance``
         (:meth:`tiltwell.dynamics.capture.CaptureEstimates.arrival_times`); None without
         tracking or a detector.
+    budget : YieldBudget or None
+        :func:`tiltwell.workflows.yields.yield_budget` of the same estimates; None without
+        ``[beam] pressure`` (no absolute numbers).
     """
 
     trap: Trap
@@ -146,6 +150,7 @@ class ScenarioFigureData:
     coils: CoilFigureData | None
     tracking: TrackingResult | None
     arrivals: FloatArray | None
+    budget: YieldBudget | None = None
 
 
 def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) -> ScenarioFigureData:
@@ -184,6 +189,8 @@ def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) ->
     arrivals = None
     if tracking is not None and sim.detector_distance is not None:
         arrivals = _frozen(estimates.arrival_times(plan.final_velocity, sim.detector_distance))
-    return ScenarioFigureData(trap=built.trap, trap_model=built.trap_model, deceleration=a, acceptance=estimates.acceptance, beam=built.beam,
-                              mismatch=built.mismatch, sample=sample, kept=kept, curve=curve,
-                              sweep_rows=rows, coils=coils, tracking=tracking, arrivals=arrivals)
+    budget = yield_budget(scenario, built, estimates) if scenario.beam.pressure is not None else None
+    return ScenarioFigureData(trap=built.trap, trap_model=built.trap_model, deceleration=a,
+                              acceptance=estimates.acceptance, beam=built.beam, mismatch=built.mismatch,
+                              sample=sample, kept=kept, curve=curve, sweep_rows=rows, coils=coils,
+                              tracking=tracking, arrivals=arrivals, budget=budget)

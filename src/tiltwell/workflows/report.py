@@ -23,12 +23,13 @@ from typing import Any
 
 import numpy as np
 
-from ..dynamics.capture import CaptureEstimates, capture_estimates
+from ..dynamics.capture import CaptureEstimates
 from ..physics.hardware import ELECTRICAL_CAUTION
 from .assemble import Built, build, timing
 from .devicemodel import model_of, phase_acceptances
-from .rowtrack import track_through_row
+from .rowtrack import estimate
 from .scenario import Scenario
+from .yields import YIELD_UNITS, yield_budget
 
 __all__ = ["Built", "UNITS", "build", "estimate", "summarise", "timing", "worst_phase"]
 
@@ -58,26 +59,7 @@ UNITS: dict[str, str] = {
     "depth_worst_phase": "J",
     "longitudinal_acceptance_worst_phase": "m*m/s",
     "transverse_acceptance_worst_phase": "m*m/s",
-}
-
-def estimate(scenario: Scenario, built: Built | None = None, *, progress: bool = False) -> CaptureEstimates:
-    """The three captured-fraction estimates of a scenario (its [simulation] settings
-    passed to :func:`tiltwell.dynamics.capture.capture_estimates`); ``built`` reuses a :func:`build`.
-
-    With ``[simulation] track_through = "row"`` (and the coil row as the trap) the
-    trajectories go through the time-dependent row instead of its twin
-    (:func:`tiltwell.workflows.rowtrack.track_through_row`; no switch-on ramp there)."""
-    built = build(scenario) if built is None else built
-    sim, schedule = scenario.simulation, built.schedule
-    through_row = sim.track and sim.track_through == "row" and model_of(scenario) == "row"
-    estimates = capture_estimates(
-        built.trap, schedule.deceleration, built.beam, schedule.duration,
-        particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
-        method=sim.method, track_particles=sim.track and not through_row, rtol=sim.rtol, samples=sim.samples,
-        switch_on_time=min(sim.switch_on_time, schedule.duration), progress=progress,
-    )
-    return track_through_row(scenario, built, estimates, progress=progress) if through_row else estimates
-
+} | YIELD_UNITS
 
 def worst_phase(scenario: Scenario, built: Built) -> tuple[float, float, float]:
     """Depth [J], longitudinal and transverse acceptance [m·m/s] of the row's trap at its
@@ -106,6 +88,8 @@ def summarise(scenario: Scenario, *, progress: bool = False) -> dict[str, Any]:
         arrived = times[np.isfinite(times)]
         summary["arrival_time_mean"] = float(arrived.mean()) if arrived.size else None
         summary["arrival_time_rms"] = float(arrived.std()) if arrived.size else None
+    budget = yield_budget(scenario, built, estimates)
+    summary.update(budget.to_dict())
     table = timing(scenario, schedule)
     if table is not None:
         summary["coils"] = int(table.positions.size)

@@ -1,5 +1,6 @@
-"""The Monte-Carlo estimate through the time-dependent coil row itself
-(``[simulation] track_through = "row"``), in place of its rigid twin.
+"""A scenario's three captured-fraction estimates (:func:`estimate`), and the Monte-Carlo
+one through the time-dependent coil row itself (``[simulation] track_through = "row"``),
+in place of its rigid twin.
 
 :func:`track_through_row` takes the overlap and energetic estimates made in the twin and
 tracks the same sample with :func:`tiltwell.track_device` in the lab frame through the
@@ -14,14 +15,14 @@ from dataclasses import replace
 
 import numpy as np
 
-from ..dynamics.capture import CaptureEstimates, default_time_step
+from ..dynamics.capture import CaptureEstimates, capture_estimates, default_time_step
 from ..dynamics.device import track_device
-from .assemble import Built
+from .assemble import Built, build
 from .coilrun import coil_run
-from .devicemodel import trap_box
+from .devicemodel import model_of, trap_box
 from .scenario import Scenario
 
-__all__ = ["track_through_row"]
+__all__ = ["estimate", "track_through_row"]
 
 
 def track_through_row(scenario: Scenario, built: Built, estimates: CaptureEstimates, *,
@@ -49,3 +50,23 @@ def track_through_row(scenario: Scenario, built: Built, estimates: CaptureEstima
                           gradient=run.gradient, time_step=min(step, schedule.duration), duration=schedule.duration,
                           box_half_widths=trap_box(scenario), method=scenario.simulation.method, progress=progress)
     return replace(estimates, tracked=result.fraction, tracked_error=result.binomial_error, tracking=result)
+
+
+def estimate(scenario: Scenario, built: Built | None = None, *, progress: bool = False) -> CaptureEstimates:
+    """The three captured-fraction estimates of a scenario (its [simulation] settings
+    passed to :func:`tiltwell.dynamics.capture.capture_estimates`); ``built`` reuses a :func:`build`.
+
+    With ``[simulation] track_through = "row"`` (and the coil row as the trap) the
+    trajectories go through the time-dependent row instead of its twin
+    (:func:`tiltwell.workflows.rowtrack.track_through_row`; no switch-on ramp there)."""
+    built = build(scenario) if built is None else built
+    sim, schedule = scenario.simulation, built.schedule
+    through_row = sim.track and sim.track_through == "row" and model_of(scenario) == "row"
+    estimates = capture_estimates(
+        built.trap, schedule.deceleration, built.beam, schedule.duration,
+        particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
+        method=sim.method, track_particles=sim.track and not through_row, rtol=sim.rtol, samples=sim.samples,
+        switch_on_time=min(sim.switch_on_time, schedule.duration), progress=progress,
+        spin_flips=sim.spin_flips and not through_row,
+    )
+    return track_through_row(scenario, built, estimates, progress=progress) if through_row else estimates

@@ -42,6 +42,9 @@ COLUMNS: tuple[str, ...] = (
     "captured_fraction_energy_error",
     "captured_fraction_mc",
     "captured_fraction_mc_error",
+    "slow_particles",
+    "slow_particles_low",
+    "slow_particles_high",
 )
 
 
