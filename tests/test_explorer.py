@@ -384,6 +384,7 @@ def test_monte_carlo_equals_capture_estimates(app: Explorer) -> None:
     app.update(particles=300)
     stale = app.readouts["tracked"].value
     estimates = app.run_monte_carlo().result(timeout=120)
+    app.wait()  # and the yield budget the check starts after it
     assert isinstance(estimates, tw.CaptureEstimates)
     trap, beam, a, mismatch, _ = direct(app)
     scenario = app.scenario()

@@ -115,12 +115,14 @@ class Tasks:
             self._due = None
 
     def flush(self, timeout: float | None = None) -> None:
-        """Make a pending :meth:`later` call now, then wait for every task."""
+        """Make a pending :meth:`later` call now, then wait for every task, those started
+        by a finishing task (the yield budget after the Monte-Carlo check) included."""
         if self._timer is not None:
             self._timer.cancel()
         self._fire()
-        for future in list(self._futures):
-            future.result(timeout)
+        while pending := [future for future in list(self._futures) if not future.done()]:
+            for future in pending:
+                future.result(timeout)
 
     def ticking(self, text: str, show: Callable[[str], None], busy: Callable[[bool], None]) -> Callable[[], None]:
         """Show ``text`` and the elapsed time every half second until the returned
