@@ -18,14 +18,9 @@ from numpy.typing import ArrayLike, NDArray
 from .._base.display import html_table
 from .._base.validation import as_finite_array, as_integer, as_scalar
 from ..physics.constants import millikelvin
-from .energetic import (
-    KNOWN_ESCAPE_SLACK,
-    EnergeticAcceptance,
-    energetic_acceptance,
-    escape_level,
-    touches_wall,
-    well_component,
-)
+from ..physics.fields import CoilSet, IdealQuadrupole
+from .energetic import KNOWN_ESCAPE_SLACK, EnergeticAcceptance, energetic_acceptance
+from .lazygrid import LazyGrid, run_fills, run_flood
 from .separatrix import Separatrix, separatrix
 from .traps import Trap
 
@@ -44,6 +39,10 @@ FloatArray = NDArray[np.float64]
 
 #: Points per axis of the coarse grid that decides whether a lower 3-D exit exists.
 _CHECK_GRID = 33
+#: Field sources whose |B| is the same float at (x, y), (-x, y), (x, -y) and (y, x): they
+#: depend on x and y through x^2, y^2 and hypot(x, y) only (tests/test_flood.py checks it).
+#: Exact types: a subclass may compute its field otherwise.
+MIRROR_SYMMETRIC = (CoilSet, IdealQuadrupole)
 
 
 def longitudinal_acceptance(trap: Trap, deceleration: float = 0.0, samples: int = 2001) -> Separatrix:
@@ -154,8 +153,8 @@ def acceptances_at(
         Decelerations [m/s^2].
     include_6d : bool
         Compute the energetic 6-D acceptance at each bound deceleration (slow: a 3-D grid
-        each); without it, all 3-D exits are checked on one coarse grid (one batched
-        labelling) and ``volume`` is NaN.
+        each); without it, all 3-D exits are checked on one shared coarse grid (one
+        compiled fill from the bottom per deceleration) and ``volume`` is NaN.
     rtol : float
         Relative accuracy of the 6-D volume, in [1e-4, 0.5] (checked where it is used,
         by :func:`tiltwell.wells.energetic.energetic_acceptance`).
@@ -194,6 +193,7 @@ def acceptances_at(
             six = energetic_acceptance(
                 trap.tilted(float(values[k])), trap.mass, trap.bounds,
                 rtol=rtol, near=(sampler.centre[0], sampler.centre[1], axes[k].z_bottom), known_escape=caps[k],
+                mirror_xy=sampler.mirror_xy,
             )
             volumes[k], escapes[k], grids[k] = six.volume, six.escape_energy, six
     elif bound.any():
@@ -299,7 +299,9 @@ class TrapSampler:
         self.axis = trap.potential(self.centre[0], self.centre[1], self.z)
         self.radial: dict[float, FloatArray] = {}
         self.axis_wells: dict[float, Separatrix] = {}
-        self.grid: tuple[FloatArray, FloatArray, list[FloatArray]] | None = None
+        self.grid: LazyGrid | None = None
+        #: Mirror-image grid nodes share one evaluation (see :data:`MIRROR_SYMMETRIC`).
+        self.mirror_xy = type(trap.source) in MIRROR_SYMMETRIC
 
     def longitudinal(self, a: float) -> Separatrix:
         """Separatrix of the tilted axis potential at deceleration ``a`` [m/s^2] (the well
@@ -324,19 +326,29 @@ class TrapSampler:
 
     def escapes(self, decelerations: FloatArray, axes: list[Separatrix], caps: FloatArray) -> FloatArray:
         """3-D escape energies [J]: each ``cap`` unless a coarse grid shows an exit
-        clearly below it (one labelling per deceleration when none does; a bisection
-        over the grid values only where one does)."""
+        clearly below it.
+
+        For each deceleration a compiled fill from the node nearest the axis bottom over
+        ``{U_eff <= cap - KNOWN_ESCAPE_SLACK * depth}`` asks whether it reaches a wall (all
+        decelerations in one call); only where one does, a priority flood finds the
+        grid's escape level. The untilted grid is shared by all decelerations and
+        computed block by block where the fills reach (``U_eff = U - m a z`` is applied
+        inside the kernels).
+        """
         if self.grid is None:
             axes3 = [np.linspace(low, high, _CHECK_GRID) for low, high in self.trap.bounds]
-            x, y, z = np.meshgrid(*axes3, indexing="ij", sparse=True)
-            self.grid = (self.trap.potential(x, y, z), z, axes3)
-        values0, z_grid, axes3 = self.grid
+            self.grid = LazyGrid(self.trap.potential, axes3, mirror_xy=self.mirror_xy)
+        grid = self.grid
         result = np.array(caps, dtype=np.float64)
-        for i, (a, axis, cap) in enumerate(zip(decelerations, axes, caps)):
-            tilted = values0 - self.mass * a * z_grid
-            near = (self.centre[0], self.centre[1], axis.z_bottom)
-            start = tuple(int(np.argmin(np.abs(ax - c))) for ax, c in zip(axes3, near))
-            bottom = axis.escape_energy - axis.depth
-            if touches_wall(well_component(tilted <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
-                result[i] = min(cap, escape_level(tilted, start))
+        tilts = (self.mass * np.asarray(decelerations, dtype=np.float64))[:, None] * grid.axes[2]
+        bottoms = np.array([axis.z_bottom for axis in axes]).reshape(-1, 1)
+        k = np.argmin(np.abs(grid.axes[2] - bottoms), axis=1)
+        ix, iy = (int(np.argmin(np.abs(ax - c))) for ax, c in zip(grid.axes[:2], self.centre[:2]))
+        starts = np.ravel_multi_index((np.full_like(k, ix), np.full_like(k, iy), k), grid.shape)
+        floors = np.array([axis.escape_energy - axis.depth for axis in axes])
+        thresholds = result - KNOWN_ESCAPE_SLACK * (result - floors)
+        for i in np.flatnonzero(run_fills(grid, starts, thresholds, tilts)):
+            level = run_flood(grid, int(starts[i]), tilt=tilts[i]).wall_level
+            assert level is not None  # the fill reached a wall, so the flood does
+            result[i] = min(result[i], level)
         return result

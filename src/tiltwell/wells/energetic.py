@@ -10,10 +10,13 @@ of such particles is
 
 the volume of a velocity ball of radius sqrt(2 (E - U) / m) at each point.
 
-On a grid the minimax path is found by bisection over the sorted grid values: for a trial
-level the connected component of ``{U <= level}`` holding the bottom either touches a wall
-or not (``scipy.ndimage.label``, face connectivity). The grid is refined until two
-successive volumes agree to the requested relative tolerance.
+On a grid the minimax path is found in one pass by a compiled priority flood from the
+bottom (:mod:`tiltwell.wells.flood`): nodes are taken in order of the highest value on
+their lowest path from the bottom, face neighbours only, and the first wall node taken
+gives the escape level; the nodes taken before it at lower levels are the well's region.
+Given a start (``near``), the potential is computed only in the blocks of the grid the
+flood reaches (:mod:`tiltwell.wells.lazygrid`). The grid is refined until two successive
+volumes agree to the requested relative tolerance.
 """
 
 from __future__ import annotations
@@ -27,6 +30,7 @@ from numpy.typing import NDArray
 from scipy import ndimage
 
 from .._base.validation import TiltwellError, as_bounds, as_scalar
+from .lazygrid import GivenGrid, LazyGrid, run_fill, run_flood
 
 __all__ = [
     "EnergeticAcceptance",
@@ -161,6 +165,7 @@ def energetic_acceptance(
     rtol: float = 1e-2,
     near: tuple[float, float, float] | None = None,
     known_escape: float | None = None,
+    mirror_xy: bool = False,
 ) -> EnergeticAcceptance:
     """Like :func:`acceptance_6d`, returning the escape energy and grid facts too.
 
@@ -170,9 +175,21 @@ def energetic_acceptance(
     under-sampled that exit: the region stays the grid's closed component and the
     integrand uses ``known_escape``. Otherwise the grid has found a lower exit and its
     level stands.
+
+    ``mirror_xy`` says that ``potential`` returns the very same number at (x, y, z),
+    (-x, y, z), (x, -y, z) and (y, x, z) (a trap symmetric about the z axis whose field is
+    computed from x^2, y^2 and hypot(x, y), as :class:`tiltwell.CoilSet` and
+    :class:`tiltwell.IdealQuadrupole` are): grid nodes related so share one evaluation.
+    The result is the same; only the number of positions evaluated changes.
+
+    With ``near`` the potential is computed only on the grid blocks the flood from the
+    bottom reaches (:class:`tiltwell.wells.lazygrid.LazyGrid`), so a NaN elsewhere in the
+    box goes unseen; without it the whole grid is computed to find the bottom.
     """
     if not callable(potential):
         raise TiltwellError(f"potential must be a callable potential(x, y, z) -> J; got {type(potential).__name__}")
+    if not isinstance(mirror_xy, (bool, np.bool_)):
+        raise TiltwellError(f"mirror_xy must be True or False; got {mirror_xy!r}")
     mass = as_scalar(mass, "mass", "kg", low=0.0, low_open=True)
     box = as_bounds(bounds)
     if energy is not None:
@@ -189,7 +206,10 @@ def energetic_acceptance(
     volumes: list[float] = []
     result: EnergeticAcceptance | None = None
     for n in _GRID_SIZES:
-        result = _on_grid(potential, mass, box, energy, n, start, known_escape)
+        # The last grid's level (or the known escape) tells the next where its flood ends.
+        hint = known_escape if result is None or known_escape is not None else result.escape_energy
+        result = _on_grid(LazyGrid(potential, [np.linspace(low, high, n) for low, high in box],
+                                   mirror_xy=bool(mirror_xy)), mass, energy, start, known_escape, hint)
         volumes.append(result.volume)
         if len(volumes) >= 3 and all(
             abs(new - old) <= rtol * max(abs(new), abs(old)) for old, new in zip(volumes[-3:-1], volumes[-2:])
@@ -204,50 +224,71 @@ def _replace_converged(result: EnergeticAcceptance, converged: bool) -> Energeti
 
 
 def _on_grid(
-    potential: Potential3D,
+    grid: LazyGrid,
     mass: float,
-    box: Bounds,
     energy: float | None,
-    n: int,
     start: tuple[float, ...] | None,
     known_escape: float | None,
+    hint: float | None,
 ) -> EnergeticAcceptance:
-    axes = [np.linspace(low, high, n) for low, high in box]
-    x, y, z = np.meshgrid(*axes, indexing="ij", sparse=True)
-    values = np.asarray(potential(x, y, z), dtype=np.float64)
-    values = np.broadcast_to(values, (n, n, n))
-    if not np.all(np.isfinite(values)):
-        raise TiltwellError("potential returned NaN or infinite values inside bounds [J]")
-    bottom = _bottom_index(values, axes, start)
+    axes = grid.axes
+    if start is None:
+        grid.fill_all()  # the default bottom is sought over the whole grid
+    bottom = _bottom_index(grid, start)
+    node = int(np.ravel_multi_index(bottom, grid.shape))
+    values = grid.grid  # +inf where the flood never looked: outside the region
     bottom_energy = float(values[bottom])
-    level = escape_level(values, bottom) if energy is None else energy
-    region_level = level
-    if energy is None and known_escape is not None:
-        if level >= known_escape - KNOWN_ESCAPE_SLACK * (known_escape - bottom_energy):
-            level = known_escape  # the integrand's energy; the region stays closed
-    region = well_component(values < min(level, region_level), bottom)
+    if energy is None:
+        run = run_flood(grid, node, hint=hint)  # stops at the first wall node: its level is the escape level
+        assert run.wall_level is not None  # every node is reachable, and a grid has walls
+        level = region_level = run.wall_level
+        if known_escape is not None:
+            if level >= known_escape - KNOWN_ESCAPE_SLACK * (known_escape - bottom_energy):
+                level = known_escape  # the integrand's energy; the region stays closed
+        # Every node whose level is below the wall's has left the heap before the wall node.
+        inside = run.order[run.levels < min(level, region_level)]
+    else:
+        level = energy
+        inside = np.flatnonzero(run_fill(grid, node, level, inclusive=False)[0])
+    flags = np.zeros(values.size, dtype=bool)
+    flags[inside] = True
+    region = flags.reshape(values.shape)
     cell = math.prod(float(a[1] - a[0]) for a in axes)
     kinetic = np.where(region, np.maximum(level - values, 0.0), 0.0)
     volume = (4.0 * math.pi / 3.0) * float(np.sum((2.0 * kinetic / mass) ** 1.5)) * cell
     point = (float(axes[0][bottom[0]]), float(axes[1][bottom[1]]), float(axes[2][bottom[2]]))
-    return EnergeticAcceptance(volume, float(level), bottom_energy, point, n, True, tuple(axes), region)
+    return EnergeticAcceptance(volume, float(level), bottom_energy, point, grid.shape[0], True, tuple(axes), region)
 
 
 def escape_level(values: NDArray[np.float64], start: tuple[int, ...]) -> float:
     """Lowest grid value L such that the component of ``{values <= L}`` holding ``start``
     touches the array's faces: the minimax escape level of a gridded potential.
 
-    Bisection over the sorted values costs about log2(values.size) labelings.
+    Parameters
+    ----------
+    values : ndarray, any number of axes
+        Finite grid values [J].
+    start : tuple of int
+        Index of the start node.
+
+    Notes
+    -----
+    One compiled priority flood from ``start`` over face neighbours
+    (:func:`tiltwell.wells.flood.priority_flood`); the level returned is one of the
+    grid values, the same one a bisection over the sorted values would find.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ring = np.array([[5., 5., 5.], [3., 0., 4.], [5., 5., 5.]])
+    >>> escape_level(ring, (1, 1))
+    3.0
     """
-    levels = np.unique(values[values >= values[start]])
-    low, high = 0, levels.size - 1  # the answer is levels[k] for the smallest k that leaks
-    while low < high:
-        middle = (low + high) // 2
-        if touches_wall(well_component(values <= levels[middle], start)):
-            high = middle
-        else:
-            low = middle + 1
-    return float(levels[low])
+    array = np.asarray(values, dtype=np.float64)
+    node = int(np.ravel_multi_index(tuple(int(i) for i in start), array.shape))
+    level = run_flood(GivenGrid(array), node).wall_level
+    assert level is not None  # a grid always has walls, and every node is reachable
+    return level
 
 
 def well_component(mask: NDArray[np.bool_], start: tuple[int, ...]) -> NDArray[np.bool_]:
@@ -255,16 +296,17 @@ def well_component(mask: NDArray[np.bool_], start: tuple[int, ...]) -> NDArray[n
 
     Parameters
     ----------
-    mask : ndarray of bool, shape (nx, ny, nz)
+    mask : ndarray of bool, any number of axes
         Grid nodes that qualify, e.g. ``values <= level`` of a gridded potential.
     start : tuple of int
         Index (i, j, k) of one node of ``mask``'s grid.
 
     Returns
     -------
-    ndarray of bool, shape (nx, ny, nz)
-        The nodes connected to ``start`` through shared faces (``scipy.ndimage.label``
-        with its default, face connectivity); all False when ``mask[start]`` is False.
+    ndarray of bool, same shape
+        The nodes connected to ``start`` through shared faces (the components of
+        ``scipy.ndimage.label`` with its default, face connectivity; found here by a
+        compiled fill from ``start``); all False when ``mask[start]`` is False.
 
     Examples
     --------
@@ -274,10 +316,10 @@ def well_component(mask: NDArray[np.bool_], start: tuple[int, ...]) -> NDArray[n
     >>> int(well_component(mask, (0, 0, 0)).sum())
     2
     """
-    if not mask[start]:
-        return np.zeros_like(mask)
-    labels, _ = ndimage.label(mask)
-    return np.asarray(labels == labels[start])
+    flags = np.asarray(mask, dtype=bool)
+    node = int(np.ravel_multi_index(tuple(int(i) for i in start), flags.shape))
+    visited, _ = run_fill(GivenGrid(np.where(flags, 0.0, 1.0)), node, 0.0)
+    return visited.reshape(flags.shape)
 
 
 def touches_wall(region: NDArray[np.bool_]) -> bool:
@@ -302,13 +344,12 @@ def touches_wall(region: NDArray[np.bool_]) -> bool:
     )
 
 
-def _bottom_index(
-    values: NDArray[np.float64], axes: list[NDArray[np.float64]], start: tuple[float, ...] | None
-) -> tuple[int, int, int]:
+def _bottom_index(grid: LazyGrid, start: tuple[float, ...] | None) -> tuple[int, int, int]:
     """The lowest interior grid point that is a minimum among its 26 neighbours (walls
     included, so a slope falling to a wall is no well), or the grid minimum reached
     downhill from ``start``. A grid with no such point yields its global minimum, on a
-    wall, whose region is empty."""
+    wall, whose region is empty. Without ``start`` the grid must be filled already."""
+    values = grid.grid
     if start is None:
         minima = values == ndimage.minimum_filter(values, size=3, mode="nearest")
         minima[[0, -1], :, :] = minima[:, [0, -1], :] = minima[:, :, [0, -1]] = False
@@ -317,13 +358,15 @@ def _bottom_index(
             candidates = values
         i, j, k = np.unravel_index(int(np.argmin(candidates)), values.shape)
         return int(i), int(j), int(k)
-    index = [int(np.argmin(np.abs(axis - c))) for axis, c in zip(axes, start)]
+    index = [int(np.argmin(np.abs(axis - c))) for axis, c in zip(grid.axes, start)]
     shape = values.shape
     while True:
-        window = tuple(slice(max(i - 1, 0), min(i + 2, s)) for i, s in zip(index, shape))
-        block = values[window]
+        low = [max(i - 1, 0) for i in index]
+        high = [min(i + 2, s) for i, s in zip(index, shape)]
+        grid.fill_box(low, high)
+        block = values[tuple(slice(lo, hi) for lo, hi in zip(low, high))]
         best = np.unravel_index(int(np.argmin(block)), block.shape)
-        candidate = [w.start + int(b) for w, b in zip(window, best)]
+        candidate = [lo + int(b) for lo, b in zip(low, best)]
         if values[tuple(candidate)] >= values[tuple(index)]:
             return index[0], index[1], index[2]
         index = candidate

@@ -13,10 +13,14 @@ piecewise-linear potential: on a segment where ``E - U`` goes linearly from ``e0
 
 so the square-root turning points cost nothing and the error is that of linear
 interpolation, O(h^2) relative, about 1e-6 for a smooth well on 2,000 samples.
+
+The scan itself (bottom, barriers, turning points, the area sum) is compiled, in
+:mod:`tiltwell.wells.scan`.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -25,6 +29,7 @@ from numpy.typing import ArrayLike, NDArray
 from .._base.display import html_table
 from ..physics.constants import millikelvin
 from .._base.validation import TiltwellError, as_finite_array, as_increasing, as_scalar
+from .scan import BOUND, samples_valid, scan_well
 
 __all__ = ["Separatrix", "separatrix"]
 
@@ -170,39 +175,21 @@ def separatrix(
     >>> round(separatrix(z, -np.cos(z), 1.0).area, 5)
     16.0
     """
-    positions = as_increasing(z, "z", "m")
-    potential = as_finite_array(U, "U", "J", ndim=1)
-    if potential.shape != positions.shape:
-        raise TiltwellError(
-            f"U [J] must have the same length as z; got {potential.size} values for {positions.size} positions"
-        )
-    mass = as_scalar(mass, "mass", "kg", low=0.0, low_open=True)
+    positions, potential = _checked_samples(z, U)
+    mass = _plain(mass) if _plain(mass) > 0.0 else as_scalar(mass, "mass", "kg", low=0.0, low_open=True)
     if near is not None:
-        near = as_scalar(near, "near", "m")
+        near = _plain(near) if math.isfinite(_plain(near)) else as_scalar(near, "near", "m")
     if max_energy is not None:
-        max_energy = as_scalar(max_energy, "max_energy", "J")
+        cap = _plain(max_energy)
+        max_energy = cap if math.isfinite(cap) else as_scalar(max_energy, "max_energy", "J")
 
-    bottom = _well_bottom(positions, potential, near)
-    if bottom is None:
-        return _unbound(mass)
-    left_barrier = int(np.argmax(potential[:bottom][::-1]))  # nearest highest sample
-    left_barrier = bottom - 1 - left_barrier
-    right_barrier = bottom + 1 + int(np.argmax(potential[bottom + 1 :]))
-    energy = min(potential[left_barrier], potential[right_barrier])
-    if max_energy is not None:
-        energy = min(energy, max_energy)
-    if energy <= potential[bottom]:
-        return _unbound(mass)
-
-    back_z, back_index = _turning_point(positions, potential, energy, bottom, left_barrier)
-    front_z, front_index = _turning_point(positions, potential, energy, bottom, right_barrier)
-    knots_z = np.concatenate([[back_z], positions[back_index + 1 : front_index], [front_z]])
-    knots_u = np.concatenate(
-        [[min(energy, np.interp(back_z, positions, potential))],
-         potential[back_index + 1 : front_index],
-         [min(energy, np.interp(front_z, positions, potential))]]
+    status, bottom, energy, back_z, front_z, knots_z, knots_u, integral = scan_well(
+        positions, potential, near is not None, 0.0 if near is None else near,
+        max_energy is not None, 0.0 if max_energy is None else max_energy,
     )
-    area = 2.0 * np.sqrt(2.0 / mass) * _sqrt_integral(knots_z, energy - knots_u)
+    if status != BOUND:
+        return _unbound(mass)
+    area = 2.0 * np.sqrt(2.0 / mass) * integral
     return Separatrix(
         area=float(area),
         escape_energy=float(energy),
@@ -217,69 +204,36 @@ def separatrix(
     )
 
 
+def _plain(value: object) -> float:
+    """``value`` as a float when it is a finite Python or numpy float, else NaN (so the
+    caller's range test fails and the validator names the argument). The validator gives
+    the very same float for these; this spares it on the many calls of a curve."""
+    if type(value) in (float, np.float64):
+        number = float(value)  # type: ignore[arg-type]
+        return number if math.isfinite(number) else math.nan
+    return math.nan
+
+
+def _checked_samples(z: ArrayLike, U: ArrayLike) -> tuple[FloatArray, FloatArray]:
+    """``z`` [m] and ``U`` [J] as float64 arrays, checked in one compiled pass; only when
+    that finds a fault do the validators run, to raise their message."""
+    try:
+        positions = np.ascontiguousarray(z, dtype=np.float64)
+        potential = np.ascontiguousarray(U, dtype=np.float64)
+    except (TypeError, ValueError):
+        positions = potential = np.empty(0)
+    if (positions.ndim == 1 and positions.size >= 3 and potential.shape == positions.shape
+            and samples_valid(positions, potential)):
+        return positions, potential
+    positions = as_increasing(z, "z", "m")
+    potential = as_finite_array(U, "U", "J", ndim=1)
+    if potential.shape != positions.shape:
+        raise TiltwellError(
+            f"U [J] must have the same length as z; got {potential.size} values for {positions.size} positions"
+        )
+    raise AssertionError("the validators accept what samples_valid refuses")  # pragma: no cover
+
+
 def _unbound(mass: float) -> Separatrix:
     nan = float("nan")
     return Separatrix(0.0, nan, 0.0, False, nan, nan, nan, mass, np.empty(0), np.empty(0))
-
-
-def _well_bottom(z: FloatArray, U: FloatArray, near: float | None) -> int | None:
-    """Index of the chosen interior minimum, or None. Flat runs count as one sample."""
-    changes = np.flatnonzero(np.diff(U) != 0.0)
-    if changes.size == 0:
-        return None
-    # Run representatives: the first index of each run of equal values.
-    starts = np.concatenate([[0], changes + 1])
-    values = U[starts]
-    interior = np.arange(1, starts.size - 1)
-    is_min = (values[interior] < values[interior - 1]) & (values[interior] < values[interior + 1])
-    is_max = (values[interior] > values[interior - 1]) & (values[interior] > values[interior + 1])
-    minima = interior[is_min]
-    if minima.size == 0:
-        return None
-    if near is not None:
-        run = int(np.searchsorted(starts, np.argmin(np.abs(z - near)), side="right")) - 1
-        maxima = interior[is_max]
-        lower = maxima[maxima < run].max(initial=-1)
-        upper = maxima[maxima > run].min(initial=starts.size)  # on a crest: both sides
-        candidates = minima[(minima > lower) & (minima < upper)]
-        if candidates.size == 0:
-            return None
-        chosen = candidates[np.argmin(values[candidates])]
-    else:
-        prefix = np.maximum.accumulate(values)
-        suffix = np.maximum.accumulate(values[::-1])[::-1]
-        escape = np.minimum(prefix[minima - 1], suffix[minima + 1])
-        chosen = minima[int(np.argmax(escape - values[minima]))]
-    # Middle of the flat run, so a flat-bottomed well is centred.
-    end = starts[chosen + 1] - 1 if chosen + 1 < starts.size else U.size - 1
-    return int((starts[chosen] + end) // 2)
-
-
-def _turning_point(z: FloatArray, U: FloatArray, energy: float, bottom: int, barrier: int) -> tuple[float, int]:
-    """First crossing of ``energy`` walking from ``bottom`` to ``barrier``.
-
-    Returns the interpolated position and the index of the first sample at or above the
-    energy (or the barrier index when none is).
-    """
-    step = 1 if barrier > bottom else -1
-    path = np.arange(bottom + step, barrier + step, step)
-    above = np.flatnonzero(U[path] >= energy)
-    index = int(path[above[0]]) if above.size else barrier
-    inner = index - step
-    rise = U[index] - U[inner]
-    if U[index] < energy or rise <= 0.0:
-        return float(z[index]), index
-    fraction = (energy - U[inner]) / rise
-    return float(z[inner] + fraction * (z[index] - z[inner])), index
-
-
-def _sqrt_integral(z: FloatArray, kinetic: FloatArray) -> float:
-    """Exact integral of sqrt(e(z)) for e linear between the knots (e >= 0)."""
-    e = np.maximum(kinetic, 0.0)
-    root = np.sqrt(e)
-    a, b = root[:-1], root[1:]
-    width = np.diff(z)
-    total = a + b
-    safe = np.where(total > 0.0, total, 1.0)
-    segment = np.where(total > 0.0, (2.0 / 3.0) * width * (a * a + a * b + b * b) / safe, 0.0)
-    return float(segment.sum())
