@@ -75,6 +75,25 @@ class SplittingScheme:
         moments = np.arange(steps)[:, None] + self.force_offsets()[None, :]
         return np.concatenate([[0.0], moments.ravel()]) * time_step
 
+    def merged_kicks(self, steps: int, time_step: float) -> FloatArray:
+        """Kick weights [s^2] at every force evaluation of :meth:`force_times`, with the last
+        kick of a step and the first of the next merged into one.
+
+        Returns
+        -------
+        ndarray, shape (steps * s + 1,)
+            ``k0 h^2``, then per step ``k1 h^2 ... k_{s-1} h^2, (ks + k0) h^2`` (the last
+            step's final entry includes the next step's first kick too, taken back by
+            :attr:`resync` when the velocities are read).
+        """
+        k = self.kicks
+        return np.concatenate([[k[0]], np.tile(np.append(k[1:-1], k[-1] + k[0]), steps)]) * time_step * time_step
+
+    @property
+    def resync(self) -> float:
+        """Share of a merged kick that belongs to the next step, ``k0 / (ks + k0)``."""
+        return self.kicks[0] / (self.kicks[-1] + self.kicks[0])
+
 
 _W1 = 1.0 / (2.0 - 2.0 ** (1.0 / 3.0))
 _W0 = -(2.0 ** (1.0 / 3.0)) * _W1

@@ -6,23 +6,34 @@ inlines an :class:`~tiltwell.physics.fields.IdealQuadrupole`, :class:`MapKernel`
 interpolates a :class:`~tiltwell.dynamics.fieldmap.FieldMap`, :class:`TrapKernel` calls
 ``Trap.force`` for any other source. :func:`force_kernel` picks one, by the registry
 :data:`SOURCE_KERNELS` of source types that have an inline kernel.
+
+The first two also describe themselves for the compiled route (:meth:`QuadrupoleKernel.compiled`,
+:meth:`MapKernel.compiled`: a :class:`CompiledForce` of plain arrays for
+:mod:`tiltwell.dynamics.compiled`); a quadrupole with a Zeeman model other than
+:class:`~tiltwell.physics.zeeman.LinearZeeman` or :class:`~tiltwell.physics.zeeman.BreitRabi`,
+and :class:`TrapKernel`, have none and run on numpy.
 """
 
 from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import dataclass
 from typing import Protocol
 
 import numpy as np
 from numpy.typing import NDArray
 
+from ..physics.constants import BOHR_MAGNETON
 from ..physics.fields import IdealQuadrupole
-from ..physics.species import LinearZeeman
+from ..physics.zeeman import BreitRabi, LinearZeeman
 from ..wells.traps import Trap
+from . import compiled
 from .fieldmap import FieldMap
 
-__all__ = ["SOURCE_KERNELS", "ForceKernel", "MapKernel", "QuadrupoleKernel", "TrapKernel", "force_kernel"]
+__all__ = [
+    "SOURCE_KERNELS", "CompiledForce", "ForceKernel", "MapKernel", "QuadrupoleKernel", "TrapKernel", "force_kernel",
+]
 
 FloatArray = NDArray[np.float64]
 
@@ -44,6 +55,23 @@ class ForceKernel(Protocol):
     compact_fraction: float
 
     def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None: ...
+
+
+@dataclass(frozen=True, eq=False)
+class CompiledForce:
+    """A force kernel as plain arrays for :mod:`tiltwell.dynamics.compiled`.
+
+    ``kind`` is one of the module's force kinds, ``parameters`` and ``counts`` its
+    constants, ``table`` the field map's nodes (nx ny nz, 3) flattened (empty for the
+    quadrupole); ``factor(pulls)`` turns the kick schedule ``scale`` [s^2] into the
+    per-evaluation factor the kernel multiplies by, with the numpy kernel's own arithmetic.
+    """
+
+    kind: int
+    parameters: FloatArray
+    counts: NDArray[np.int64]
+    table: FloatArray
+    factor: Callable[[FloatArray], FloatArray]
 
 
 class QuadrupoleKernel:
@@ -91,6 +119,37 @@ class QuadrupoleKernel:
         np.multiply(factor, x, out=out[0])
         np.multiply(factor, y, out=out[1])
 
+    def compiled(self) -> CompiledForce | None:
+        """This kernel for the compiled route, or None for a Zeeman model it does not
+        compile (only :class:`LinearZeeman` and :class:`BreitRabi`, by exact type).
+
+        The factor is the numerator the numpy kernel forms per call, ``-scale moment B' / m``
+        (linear) or ``-scale B' / m`` (Breit–Rabi, times ``W'(|B|)`` per particle); the
+        Breit–Rabi constants repeat ``BreitRabi.derivative``'s scalar prefactors."""
+        gradient, mass, zeeman = self.gradient, self.mass, self.zeeman
+        constants = [0.0] * 7
+        if self.moment is not None:
+            kind, moment = compiled.QUADRUPOLE_LINEAR, self.moment
+
+            def factor(pulls: FloatArray) -> FloatArray:
+                return -pulls * moment * gradient / mass
+        elif type(zeeman) is BreitRabi:
+            kind = compiled.QUADRUPOLE_BREIT_RABI
+            half = 2 * zeeman.mF / (2 * zeeman.nuclear_spin + 1)
+            sign = 1.0 if zeeman.F > zeeman.nuclear_spin else -1.0
+            constants = [
+                (zeeman.g_J - zeeman.g_I) * BOHR_MAGNETON, zeeman.hyperfine_splitting, half, 2 * half,
+                sign * (zeeman.g_J - zeeman.g_I) * BOHR_MAGNETON / 2, zeeman.g_I * BOHR_MAGNETON * zeeman.mF,
+                math.copysign(1.0, zeeman.mF) if abs(zeeman.mF) == zeeman.nuclear_spin + 0.5 else 0.0,
+            ]
+
+            def factor(pulls: FloatArray) -> FloatArray:
+                return -pulls * gradient / mass
+        else:
+            return None
+        parameters = np.array([gradient, self.center, self.cap, _TIP, *constants])
+        return CompiledForce(kind, parameters, np.zeros(3, dtype=np.int64), np.zeros(0), factor)
+
 
 class MapKernel:
     """A :class:`FieldMap`'s interpolated force [N] divided by the ``mass`` [kg]."""
@@ -102,6 +161,20 @@ class MapKernel:
 
     def __call__(self, positions: FloatArray, out: FloatArray, scratch: FloatArray, scale: float) -> None:
         self.field_map.interpolate_rows(positions, out, scale / self.mass)
+
+    def compiled(self) -> CompiledForce:
+        """This kernel for the compiled route: the grid's lower corner [m] and inverse
+        spacings [1/m] as :meth:`FieldMap.interpolate_rows` forms them, the node counts and
+        the nodes' forces [N]; the factor ``scale / m``."""
+        field_map, mass = self.field_map, self.mass
+        low = np.array([low for low, _ in field_map.bounds])
+        inverse = 1.0 / np.array(field_map.spacing)
+        counts = np.array(field_map.shape, dtype=np.int64)
+
+        def factor(pulls: FloatArray) -> FloatArray:
+            return pulls / mass
+        return CompiledForce(compiled.FIELD_MAP, np.concatenate([low, inverse]), counts,
+                             field_map.forces.ravel().copy(), factor)
 
 
 class TrapKernel:

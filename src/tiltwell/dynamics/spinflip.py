@@ -77,6 +77,7 @@ from .fieldmap import FieldMap
 __all__ = [
     "SpinFlipCheck",
     "SpinFlips",
+    "flip_quadrupole",
     "adiabaticity",
     "flip_probability",
     "landau_zener_probability",
@@ -411,16 +412,23 @@ class _SourceField:
         return np.ascontiguousarray(self.source.field(positions.T).T)
 
 
-def _field_rows(trap: Trap, field_map: FieldMap | None) -> object:
-    """The field evaluator: inline for an ideal quadrupole or for a source that holds |B|
-    only and offers ``near_zero``, the ideal quadrupole of its linear zero (a
-    phase-averaged table: flips happen within microns of the zero, where that is the
-    field); a field grid alongside a force map; else the source's own ``field``."""
+def flip_quadrupole(trap: Trap) -> IdealQuadrupole | None:
+    """The ideal quadrupole whose field the check reads inline for ``trap``, or None: the
+    source's ``near_zero`` when it holds |B| only (a phase-averaged table: the linear field
+    of its zero, where flips happen, within microns of it), else the source itself when it
+    is exactly an :class:`~tiltwell.physics.fields.IdealQuadrupole`."""
     near_zero = getattr(trap.source, "near_zero", None)
     if isinstance(near_zero, IdealQuadrupole):
-        return _QuadrupoleField(near_zero)
-    if type(trap.source) is IdealQuadrupole:
-        return _QuadrupoleField(trap.source)
+        return near_zero
+    return trap.source if type(trap.source) is IdealQuadrupole else None
+
+
+def _field_rows(trap: Trap, field_map: FieldMap | None) -> object:
+    """The field evaluator: inline for :func:`flip_quadrupole`'s quadrupole; a field grid
+    alongside a force map; else the source's own ``field``."""
+    quadrupole = flip_quadrupole(trap)
+    if quadrupole is not None:
+        return _QuadrupoleField(quadrupole)
     if field_map is not None:
         return _GridField(trap, field_map)
     return _SourceField(trap)

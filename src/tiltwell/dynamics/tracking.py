@@ -14,11 +14,20 @@ come from the registry :data:`~tiltwell.dynamics.integrators.INTEGRATORS`, which
 :func:`tiltwell.track_device` uses too; the inputs both trackers share are checked in
 :mod:`tiltwell.dynamics.checks`.
 
-Speed: the particles are held as component rows (6, n) and stepped by whole-array numpy
-operations; particles that leave are frozen and removed from the working arrays. The force
-kernels are in :mod:`tiltwell.dynamics.kernels`: an
-:class:`~tiltwell.physics.fields.IdealQuadrupole` is evaluated inline (no per-call validation); a
-:class:`FieldMap` makes coil traps fast; any other source goes through ``Trap.force``.
+Two routes, the same numbers. The compiled route (:mod:`tiltwell.dynamics.blocks` driving
+the numba kernels of :mod:`tiltwell.dynamics.compiled`: blocks of 32 particles, many steps
+per call, on ``numba.get_num_threads()`` threads from the main thread) runs an exact
+:class:`~tiltwell.physics.fields.IdealQuadrupole` with a linear or Breit–Rabi Zeeman state,
+and any :class:`FieldMap`; with ``spin_flips`` on, only where the check reads an ideal
+quadrupole's field (the source, or a |B| table's ``near_zero``). Everything else runs the
+numpy route below: another source through ``Trap.force``, another Zeeman model, the
+spin-flip check on a field grid or on ``source.field``
+(:func:`tiltwell.dynamics.blocks.route` tells which). The compiled kernels repeat the numpy
+route's operations in its order without fastmath, so the trajectories agree bit for bit
+(``tests/test_compiled_track.py``). The numpy route holds the particles as component rows
+(6, n), steps them by whole-array operations and removes those that leave; its force
+kernels are in :mod:`tiltwell.dynamics.kernels` (the quadrupole inline, a
+:class:`FieldMap` for coil traps, else ``Trap.force``).
 """
 
 from __future__ import annotations
@@ -32,6 +41,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .._base.validation import TiltwellError, as_integer, as_scalar
 from ..wells.traps import Trap
+from .blocks import BlockStepper, block_stepper
 from .checks import check_flag, check_particles, fixed_steps, progress_bar
 from .fieldmap import FieldMap
 from .integrators import SplittingScheme, integrator
@@ -93,7 +103,8 @@ def track(
     record_every : int
         Steps between entries of ``times`` and ``survival``, >= 1 (the end is always one).
     progress : bool
-        Show a tqdm progress bar over chunks x steps.
+        Show a tqdm progress bar over chunks x steps (on the compiled route it advances
+        between compiled calls, each about 4e6 particle-steps).
     spin_flips : SpinFlips or bool, optional
         Off by default (None or False: the run is the same, bit for bit). True or a
         :class:`~tiltwell.dynamics.spinflip.SpinFlips` checks every step for a close pass
@@ -109,7 +120,8 @@ def track(
     Notes
     -----
     Each particle is integrated independently by element-wise operations, so with the
-    built-in forces (ideal quadrupole, field map) the result does not depend on ``chunk``.
+    built-in forces (ideal quadrupole, field map) the result does not depend on ``chunk``,
+    on the route (compiled or numpy, see the module notes) or on the number of threads.
     Particles are tested against the box after whole steps only.
 
     Both methods assume a smooth force. At the zero of a quadrupole the force jumps (the
@@ -156,7 +168,10 @@ def track(
     final = state.copy()
     lost_step = np.full(count, steps + 1, dtype=np.int64)
     lower, upper = (np.array([pair[k] for pair in trap.bounds])[:, None] for k in (0, 1))
-    stepper = _Stepper(force_kernel(trap, field_map), scheme, dt, tilts, scales, lower, upper, steps, flips)
+    kernel = force_kernel(trap, field_map)
+    stepper: _Stepper | BlockStepper | None = block_stepper(kernel, trap, scheme, dt, tilts, scales, flips)
+    if stepper is None:
+        stepper = _Stepper(kernel, scheme, dt, tilts, scales, lower, upper, steps, flips)
     with progress_bar(shown, math.ceil(count / size) * steps) as bar:
         for start in range(0, count, size):
             stop = min(start + size, count)
@@ -178,11 +193,10 @@ class _Stepper:
         self, kernel: ForceKernel, scheme: SplittingScheme, dt: float, tilts: FloatArray, scales: FloatArray,
         lower: FloatArray, upper: FloatArray, steps: int, flips: SpinFlipCheck | None = None,
     ) -> None:
-        k = scheme.kicks
-        weights = np.concatenate([[k[0]], np.tile(np.append(k[1:-1], k[-1] + k[0]), steps)]) * dt * dt
+        weights = scheme.merged_kicks(steps, dt)
         self.kernel, self.drifts, self.dt = kernel, scheme.drifts, dt
         self.pulls, self.pushes = (weights * scales).tolist(), (weights * tilts).tolist()
-        self.back = k[0] / (k[-1] + k[0])  # share of a merged kick that belongs to the next step
+        self.back = scheme.resync  # share of a merged kick that belongs to the next step
         self.lower, self.upper = lower, upper
         self.flips = flips  # the spin-flip check, or None (off)
 
