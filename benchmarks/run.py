@@ -8,6 +8,8 @@ that is not reached says "missed"; the numbers are never adjusted to pass.
 
 from __future__ import annotations
 
+import os
+import platform
 import sys
 import time
 
@@ -64,6 +66,7 @@ def main() -> None:
         rows += more_rows
         checks += more_checks
 
+    print(f"Ran on {cpu_name()}, python {sys.version.split()[0]}, {time.strftime('%Y-%m-%d', time.gmtime())} (UTC)\n")
     print("| " + " | ".join(COLUMNS) + " |")
     print("|" + "|".join("---" for _ in COLUMNS) + "|")
     for entry in rows:
@@ -71,7 +74,17 @@ def main() -> None:
     print()
     for line in checks:
         print(f"- {line}")
-    print(f"\n(total {time.perf_counter() - started:.0f} s, python {sys.version.split()[0]})")
+    print(f"\n(total {time.perf_counter() - started:.0f} s)")
+
+
+def cpu_name() -> str:
+    """The processor's model name (Linux /proc/cpuinfo; platform.processor() elsewhere) and the core count."""
+    try:
+        with open("/proc/cpuinfo", encoding="utf-8") as info:
+            name = next(line.split(":", 1)[1].strip() for line in info if line.startswith("model name"))
+    except (OSError, StopIteration):
+        name = platform.processor() or "unknown"
+    return f"{name}, {os.cpu_count()} cores"
 
 
 if __name__ == "__main__":
