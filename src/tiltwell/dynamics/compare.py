@@ -26,7 +26,7 @@ from .._base.validation import TiltwellError, as_integer, as_points, as_scalar
 from ..coils.array import CoilArray, CurrentPlan, check_coil_array, trap_currents
 from .device import UniformMotion, check_device_run, track_device
 from .fieldmap import FieldMap
-from ..physics.fields import Coil, CoilSet
+from ..physics.fields import Coil, CoilSet, FieldSource
 from ..coils.schedule import Schedule
 from ..coils.schedule import arrival_times as _free_flight
 from ..physics.species import Species
@@ -306,6 +306,7 @@ def compare_device(
     plan_times: ArrayLike | None = None,
     phases: int = 16,
     average: str = "magnitude",
+    twin: FieldSource | None = None,
     field_map_shape: tuple[int, int, int] = (41, 41, 41),
     record_every: int = 1,
     progress: bool = False,
@@ -338,6 +339,13 @@ def compare_device(
         Phases averaged by :class:`PhaseAveragedField`, >= 1.
     average : {"magnitude", "field"}, default "magnitude"
         What the rigid twin averages (see :class:`PhaseAveragedField`).
+    twin : field source, optional
+        The rigid run's source (trap frame, zero at the origin), from which its field map
+        is built. Default: ``PhaseAveragedField(array, gradient, phases, average)`` itself,
+        P x ``active`` coils of elliptic integrals per node of the map. A tabulated copy of
+        the same average (e.g. :class:`tiltwell.workflows.fieldtable.AxisymmetricTable` of
+        the row's phases, which ``tiltwell coils --track`` passes) builds the map at a
+        look-up's cost, to the table's accuracy.
     field_map_shape : (int, int, int), default (41, 41, 41)
         Grid of the rigid run's :class:`~tiltwell.dynamics.tracking.FieldMap` over the box.
     record_every : int, default 1
@@ -373,7 +381,11 @@ def compare_device(
             f"which moves it over [{ends[0]:g}, {ends[1]:g}] m"
         )
     reference = PhaseAveragedField(array, gradient, phases, average)
-    trap = Trap(reference, species, tuple((-h, h) for h in halves.tolist()))
+    if twin is not None and not (callable(getattr(twin, "magnitude", None))
+                                 and callable(getattr(twin, "magnitude_gradient", None))):
+        raise TiltwellError(f"twin must be a field source with magnitude and magnitude_gradient, or None; "
+                            f"got {type(twin).__name__}")
+    trap = Trap(reference if twin is None else twin, species, tuple((-h, h) for h in halves.tolist()))
     field_map = FieldMap.from_trap(trap, field_map_shape)
     rigid = track(trap, state, total, time_step, deceleration=_deceleration(schedule, total),
                   field_map=field_map, record_every=every, progress=progress)

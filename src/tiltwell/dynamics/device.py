@@ -15,12 +15,16 @@ instead of a rigid trap: the hand-over from coil to coil (the ripple of
   z - z_trap, vz - v_trap). At each force evaluation the tables of the coils carrying
   current (:class:`~tiltwell.dynamics.coilmap.CoilFieldMap`) are summed once over a window
   around the trap (:class:`~tiltwell.dynamics.coilmap.SummedCoilField`), so a particle
-  costs one bilinear look-up whatever the number of coils (benchmarks/bench_device.py:
-  1e5 particles through 300 coils, switch-on to release, in a few minutes).
+  costs one bilinear look-up whatever the number of coils.
 
 A run is four steps: the input checks, the current planning (:class:`_Currents`: the
 active coils and their currents at every force evaluation), the map building and the
-stepping (:func:`_step_lab_frame`).
+stepping (:func:`_step_lab_frame`). The stepping has two routes, the same numbers: for a
+linear Zeeman state the compiled kernels of :mod:`tiltwell.dynamics.devicekernel` (many
+steps per call, particles in blocks, the summed tables in L2; the operations of the numpy
+route in its order, so bit for bit the same trajectories, ``tests/test_compiled_device.py``),
+otherwise, or with ``devicekernel.ENABLED`` False (the tests' reference), the numpy route
+below (whole-array passes over blocks of :data:`_BLOCK` particles).
 
 SI units throughout (m, s, T, A, J).
 """
@@ -38,6 +42,7 @@ from .._base.validation import TiltwellError, as_finite_array, as_integer, as_sc
 from ..coils.array import CoilArray, check_coil_array, check_on_row, local_currents
 from ..coils.schedule import Schedule
 from ..physics.species import Species
+from . import devicekernel
 from .checks import check_flag, check_particles, fixed_steps, progress_bar
 from .coilmap import CoilFieldMap, SummedCoilField
 from .integrators import SplittingScheme, integrator
@@ -269,6 +274,21 @@ def _device_map(array: CoilArray, halves: FloatArray, field_map: CoilFieldMap | 
     return field_map
 
 
+def _compiled_plan(field: SummedCoilField, currents: _Currents, trap_z: FloatArray) -> tuple[IntArray, FloatArray,
+                                                                                             IntArray]:
+    """The coils (M, K), their currents (M, K) [A] and the window's first node (M,) at every
+    force evaluation, as :meth:`_Currents.at` and :meth:`SummedCoilField.load` form them."""
+    if currents.slot is None:
+        coils, local = currents.coils, currents.local
+    else:
+        p, w = currents.slot, currents.weight[:, None]
+        coils = np.concatenate((currents.coils[p], currents.coils[p + 1]), axis=1)
+        local = np.concatenate(((1.0 - w) * currents.local[p], w * currents.local[p + 1]), axis=1)
+    half = 0.5 * (field.nodes - 1) * field.map.z_step
+    starts = np.floor((trap_z - half - field.first) / field.map.z_step).astype(np.int64)
+    return (np.ascontiguousarray(coils, dtype=np.int64), np.ascontiguousarray(local, dtype=np.float64), starts)
+
+
 def _step_lab_frame(field: SummedCoilField, scheme: SplittingScheme, currents: _Currents,
                     motion: tuple[FloatArray, FloatArray, FloatArray], state: FloatArray, halves: FloatArray,
                     dt: float, bar: Any) -> tuple[FloatArray, IntArray]:
@@ -296,6 +316,20 @@ def _step_lab_frame(field: SummedCoilField, scheme: SplittingScheme, currents: _
     starts_out = outside(state[:, :3].T, 0)
     lost_step[starts_out] = 0
     index = np.flatnonzero(~starts_out)
+    if devicekernel.ENABLED and field.moment is not None:  # the compiled route (module notes)
+        plan = _compiled_plan(field, currents, trap_z)
+        schedule = np.array([[scheme.kicks[0] * dt] * len(scheme.drifts), [d * dt for d in scheme.drifts],
+                             [k * dt for k in scheme.kicks[1:]]])
+        ends = np.zeros((5, steps + 1))
+        ends[0], ends[1], ends[2:, 0] = end_z, end_v, halves
+        geometry = np.array([1.0 / field.map.u_step, 1.0 / field.map.z_step, field.first, field.moment, field.scale])
+        moved = state.copy()
+        index = devicekernel.step(field.map, field.nodes, plan, geometry, schedule, ends, moved, index, final,
+                                  lost_step, bar)
+        final[index] = moved[index]
+        final[index, 2] -= end_z[steps]
+        final[index, 5] -= end_v[steps]
+        return final, lost_step
     r = np.ascontiguousarray(state[index, :3].T)  # rows (3, n)
     v = np.ascontiguousarray(state[index, 3:].T)
     a = np.empty_like(r)

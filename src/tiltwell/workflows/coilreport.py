@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from .._base.validation import TiltwellError, as_integer
+from .._base.validation import as_integer
 from ..coils.array import trap_currents
 from ..coils.drive import DriveLoad, drive_load
 from ..coils.moving import PhaseScan
@@ -39,6 +39,7 @@ from .coilrun import (
     coils_section,
     device_box,
 )
+from .devicemodel import twin_table
 from .report import build
 from .scenario import Scenario
 
@@ -304,7 +305,10 @@ def device_check(scenario: Scenario, particles: int | None = None, *, run: CoilR
     table) and interpolated linearly between, as a pulse generator would play them. Time
     step: ``[simulation] time_step``, else the rigid trap's default
     (:func:`tiltwell.dynamics.capture.default_time_step`). Both runs lose particles at the walls of
-    :func:`device_box`. ``run``: a :func:`coil_run` of the same scenario, to reuse.
+    :func:`device_box`. ``run``: a :func:`coil_run` of the same scenario, to reuse. The rigid
+    twin's field map is built from the row's own table of the twin
+    (:func:`~tiltwell.workflows.devicemodel.twin_table`, cached, the same ``[coils] phases``
+    over the same box) rather than from the coils' filaments.
     """
     coils = coils_section(scenario)
     built = build(scenario)
@@ -318,4 +322,4 @@ def device_check(scenario: Scenario, particles: int | None = None, *, run: CoilR
     sample[:, 5] -= built.mismatch
     return compare_device(run.array, built.species, sample, schedule=built.schedule, gradient=run.gradient,
                           time_step=min(step, built.schedule.duration), box_half_widths=device_box(scenario, run.array),
-                          plan_times=run.times, phases=coils.phases, progress=progress)
+                          plan_times=run.times, phases=coils.phases, twin=twin_table(scenario), progress=progress)
