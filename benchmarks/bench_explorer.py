@@ -45,6 +45,8 @@ COIL_MOVES = 20
 COIL_PART_MOVES = 20
 SPECIES = ("Rb-87", "NH", "CaF", "Na-23", "O2", "Cr", "Li-7", "K-39")
 TARGET_S = 0.05
+#: A slider move to updated sources (issue 12's target; a species change keeps TARGET_S).
+SLIDER_TARGET_S = 0.02
 #: Bound for every species of SPECIES in the demo's 100 T/m quadrupole (Rb-87's critical
 #: deceleration there is 6.4e3 m/s^2, measured; mu_B B' / m by hand).
 SPECIES_DECELERATION = 3000.0
@@ -62,14 +64,14 @@ def _times(calls: list[Callable[[], object]]) -> list[float]:
     return out
 
 
-def _row(case: str, tiltwell_s: float, reference_s: float) -> dict[str, object]:
+def _row(case: str, tiltwell_s: float, reference_s: float, target_s: float = TARGET_S) -> dict[str, object]:
     return {
         "case": case,
         "tiltwell_s": tiltwell_s,
         "reference_s": reference_s,
         "ratio": tiltwell_s / reference_s,
-        "target": f"<= {TARGET_S:g} s",
-        "met": tiltwell_s <= TARGET_S,
+        "target": f"<= {target_s:g} s",
+        "met": tiltwell_s <= target_s,
     }
 
 
@@ -109,7 +111,7 @@ def slider_row(app: Any, moves: int, label: str) -> tuple[dict[str, object], lis
              f"m·m/s, overlap {app.state['captured_fraction_overlap']:.6e}; the library directly: {area:.6e}, "
              f"{overlap:.6e}; slowest move {max(ours) * 1e3:.1f} ms; errors caught: {len(app.errors)}")
     case = f"explorer: {label}, median of {moves} deceleration-slider moves (ref: trap_acceptance + overlaps)"
-    return _row(case, statistics.median(ours), statistics.median(theirs)), [check]
+    return _row(case, statistics.median(ours), statistics.median(theirs), SLIDER_TARGET_S), [check]
 
 
 def species_row(app: Any) -> tuple[dict[str, object], list[str]]:
