@@ -30,10 +30,13 @@ import tempfile
 from typing import Any
 
 import numpy as np
-from scipy import ndimage
 
 import tiltwell
 from bench_fields import median_time
+
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), os.pardir, "tests"))
+from test_flood import reference_component, reference_escape_level, reference_touches_wall  # noqa: E402
+
 from tiltwell.wells.acceptance import TrapSampler
 from tiltwell.wells.energetic import KNOWN_ESCAPE_SLACK
 
@@ -74,29 +77,6 @@ def _row(case: str, tiltwell_s: float, reference_s: float, target_s: float | Non
 # --- the replaced route: the whole grid and scipy.ndimage.label ------------------------
 
 
-def _touches_wall(region: np.ndarray) -> bool:
-    return any(region.take(0, axis).any() or region.take(-1, axis).any() for axis in range(region.ndim))
-
-
-def _component(mask: np.ndarray, start: tuple[int, ...]) -> np.ndarray:
-    if not mask[start]:
-        return np.zeros_like(mask)
-    labels, _ = ndimage.label(mask)
-    return np.asarray(labels == labels[start])
-
-
-def _bisected_level(values: np.ndarray, start: tuple[int, ...]) -> float:
-    levels = np.unique(values[values >= values[start]])
-    low, high = 0, levels.size - 1
-    while low < high:
-        middle = (low + high) // 2
-        if _touches_wall(_component(values <= levels[middle], start)):
-            high = middle
-        else:
-            low = middle + 1
-    return float(levels[low])
-
-
 def replaced_escapes(trap: tiltwell.Trap, decelerations: np.ndarray, axes: list[Any], caps: np.ndarray) -> np.ndarray:
     """The curve's coarse 3-D check as it was: the whole 33^3 grid, one labelling per
     deceleration, the labelling bisection where the component reaches a wall."""
@@ -108,8 +88,8 @@ def replaced_escapes(trap: tiltwell.Trap, decelerations: np.ndarray, axes: list[
         tilted = values0 - trap.mass * a * z
         start = tuple(int(np.argmin(np.abs(ax - c))) for ax, c in zip(grid_axes, (0.0, 0.0, axis.z_bottom)))
         bottom = axis.escape_energy - axis.depth
-        if _touches_wall(_component(tilted <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
-            result[i] = min(cap, _bisected_level(tilted, start))
+        if reference_touches_wall(reference_component(tilted <= cap - KNOWN_ESCAPE_SLACK * (cap - bottom), start)):
+            result[i] = min(cap, reference_escape_level(tilted, start))
     return result
 
 
@@ -135,10 +115,10 @@ def replaced_six_d(trap: tiltwell.Trap, a: float, rtol: float = 1e-2) -> tuple[f
                 break
             index = step
         bottom = tuple(index)
-        level = region_level = _bisected_level(values, bottom)
+        level = region_level = reference_escape_level(values, bottom)
         if level >= known - KNOWN_ESCAPE_SLACK * (known - values[bottom]):
             level = known
-        region = _component(values < min(level, region_level), bottom)
+        region = reference_component(values < min(level, region_level), bottom)
         kinetic = np.where(region, np.maximum(level - values, 0.0), 0.0)
         cell = math.prod(float(g[1] - g[0]) for g in grid_axes)
         volumes.append((4.0 * math.pi / 3.0) * float(np.sum((2.0 * kinetic / trap.mass) ** 1.5)) * cell)

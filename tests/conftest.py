@@ -53,3 +53,20 @@ KRYPTON_SPEED_300K = math.sqrt(5 * K_B * 300.0 / (83.798 * AMU))
 
 #: An invented test particle: 7 u with a constant moment of one Bohr magneton.
 TEST_PARTICLE = Species("test-particle", 7 * AMU, LinearZeeman(MU_B), state="linear 1 mu_B")
+
+
+class WrappedSource:
+    """A field source behind a plain wrapper: its own numbers, but not a type the trackers
+    inline or compile, so ``track`` takes the general ``Trap.force`` route (numpy)."""
+
+    def __init__(self, source: object) -> None:
+        self.source = source
+
+    def magnitude(self, points: object) -> np.ndarray:
+        return self.source.magnitude(points)  # type: ignore[attr-defined, no-any-return]
+
+    def magnitude_gradient(self, points: object) -> np.ndarray:
+        return self.source.magnitude_gradient(points)  # type: ignore[attr-defined, no-any-return]
+
+    def field(self, points: object) -> np.ndarray:
+        return self.source.field(points)  # type: ignore[attr-defined, no-any-return]

@@ -30,7 +30,7 @@ from tiltwell.dynamics.results import TrackingResult
 from tiltwell.dynamics.spinflip import SpinFlips
 from tiltwell.dynamics.tracking import FieldMap, track
 
-from conftest import AMU, MU_B
+from conftest import AMU, MU_B, WrappedSource
 
 ARRAYS = ("final", "kept", "lost_time", "survival", "times")
 LIGHT = Species("light", 7 * AMU, LinearZeeman(MU_B))  # a 7 u particle of one Bohr magneton
@@ -294,28 +294,12 @@ def test_spin_flips_with_a_map_and_near_zero() -> None:
 # --- where the numpy route runs ---------------------------------------------------------------------
 
 
-class Plain:
-    """A quadrupole behind a plain wrapper: no inline kernel, ``Trap.force`` (numpy)."""
-
-    def __init__(self, source: IdealQuadrupole) -> None:
-        self.source = source
-
-    def magnitude(self, points: ArrayLike) -> NDArray[np.float64]:
-        return self.source.magnitude(points)
-
-    def magnitude_gradient(self, points: ArrayLike) -> NDArray[np.float64]:
-        return self.source.magnitude_gradient(points)
-
-    def field(self, points: ArrayLike) -> NDArray[np.float64]:
-        return self.source.field(points)
-
-
 def test_routes_named_and_numpy_fallbacks_run() -> None:
     """The numpy route runs for a source without a compiled force, a Zeeman model other than
     linear or Breit–Rabi, and the spin-flip check on a field grid; ``ENABLED = False``
     forces it everywhere. Those calls still give the numpy numbers (they are that route)."""
     tabulated = Species("table", 7 * AMU, TabulatedZeeman([0.0, 0.1, 0.2, 0.4], [0.0, 1e-24, 1.9e-24, 3.5e-24]))
-    plain = Trap(Plain(IdealQuadrupole(GRADIENT, 0.2)), LIGHT, BOX)
+    plain = Trap(WrappedSource(IdealQuadrupole(GRADIENT, 0.2)), LIGHT, BOX)
     assert blocks.route(quadrupole_trap(tabulated)) == "numpy"
     assert blocks.route(plain) == "numpy"
     field_map = FieldMap.from_trap(plain, (9, 9, 9))

@@ -27,7 +27,7 @@ from tiltwell import (
 from tiltwell.dynamics.integrators import INTEGRATORS
 from tiltwell.dynamics.tracking import FieldMap, TrackingResult, track
 
-from conftest import AMU, MU_B, TEST_PARTICLE as PARTICLE
+from conftest import AMU, MU_B, WrappedSource, TEST_PARTICLE as PARTICLE
 
 # --- a smooth well: |B| = B0 + b r^2 / 2 + c r^4 / 4 ---------------------------------------
 
@@ -108,20 +108,6 @@ def quadrupole_trap(species: Species = PARTICLE) -> Trap:
 def quadrupole_beam(count: int, seed: int, sigma_r: float = 2e-3, sigma_v: float = 8.0) -> NDArray[np.float64]:
     rng = np.random.default_rng(seed)
     return np.hstack([rng.normal(0.0, sigma_r, (count, 3)), rng.normal(0.0, sigma_v, (count, 3))])
-
-
-class Shifted:
-    """The same quadrupole behind a plain wrapper, so ``track`` takes the general
-    ``Trap.force`` path instead of its inline one."""
-
-    def __init__(self, source: IdealQuadrupole) -> None:
-        self.source = source
-
-    def magnitude(self, points: ArrayLike) -> NDArray[np.float64]:
-        return self.source.magnitude(points)
-
-    def magnitude_gradient(self, points: ArrayLike) -> NDArray[np.float64]:
-        return self.source.magnitude_gradient(points)
 
 
 # --- closed forms in the smooth well ---------------------------------------------------------
@@ -283,7 +269,7 @@ def test_inline_quadrupole_matches_trap_force(species: str) -> None:
         "test-hyperfine", 7 * AMU, BreitRabi(1.5, constants.h * 2e8, F=2, mF=1)
     )
     inline = quadrupole_trap(chosen)
-    general = Trap(Shifted(inline.source), chosen, inline.bounds)  # type: ignore[arg-type]
+    general = Trap(WrappedSource(inline.source), chosen, inline.bounds)  # type: ignore[arg-type]
     particles = quadrupole_beam(500, seed=2, sigma_v=20.0)
     fast, slow = (track(t, particles, 200e-6, 2e-6, deceleration=3e3) for t in (inline, general))
     assert np.array_equal(fast.kept, slow.kept)
