@@ -204,3 +204,27 @@ def test_run_without_a_pressure_says_what_is_missing(tmp_path: Path, capsys: pyt
     text = capsys.readouterr().out
     assert "slow particles per shot  needs [beam] pressure and seed_fraction" in text
     assert "in trappable states      0.5 of the particles" in text
+
+
+def test_hold_takes_the_weak_field_moment_of_a_breit_rabi_state() -> None:
+    """Rb-87 |F=2, mF=1> in a 1000 T/m quadrupole: the Majorana rate uses the moment at the
+    zero, g_F m_F mu_B with g_F = (g_J + 2 I g_I) / (2 I + 1) (the weak-field limit of the
+    Breit-Rabi formula, Arimondo, Inguscio & Violino, RMP 49, 31 (1977); from memory), about
+    half the slope at 1 T; the temperature is the survivors' velocity variance by numpy."""
+    data = quadrupole(pressure=PRESSURE, seed_fraction=SEED).to_dict()
+    data["species"] = {"name": "Rb-87"}
+    data["trap"].update(gradient=1000.0, max_field=0.5)
+    data["simulation"]["spin_flips"] = False
+    data["hold"] = {"time": 0.5}
+    held = sc.from_dict(data)
+    built = build(held)
+    budget = yield_budget(held, built, estimate(held, built))
+    state = next(s for s in budget.states if s.label.endswith("F=2 mF=1"))
+    tracking = state.estimates.tracking
+    assert tracking is not None and np.count_nonzero(tracking.kept) >= 5
+    g_j, g_i, spin = 2.00233113, -0.0009951414, 1.5  # Steck, Rubidium 87 D Line Data (from memory)
+    weak = (g_j + 2 * spin * g_i) / (2 * spin + 1) * C.physical_constants["Bohr magneton"][0]
+    temperature = float(np.mean(built.species.mass * tracking.final[tracking.kept][:, 3:].var(axis=0) / C.k))
+    rate = 0.16 * C.hbar / built.species.mass * (weak * 1000.0 / (C.k * temperature)) ** 2
+    assert state.hold == pytest.approx(math.exp(-0.5 * rate), rel=1e-6)
+    assert state.moment > 1.5 * weak  # the slope at 1 T would overstate the rate

@@ -20,7 +20,8 @@ The stages (each a number of particles of the species per shot):
    ``[simulation] track``, else the energetic 6-D one.
 5. **after spin flips** (``[simulation] spin_flips``): the tracker's Landau–Zener weights.
 6. **after the hold** (``[hold]``): ``exp(-(Majorana + background-gas rate) t)`` per state,
-   the Majorana rate at that state's tracked final temperature
+   the Majorana rate at that state's tracked final temperature with its weak-field moment
+   ``|dW/d|B||`` at zero field, where flips happen
    (:func:`tiltwell.dynamics.losses.majorana_rate`, gradient measured on the trap's axis).
 
 The interval: the statistical error of the estimate, a systematic of half the range
@@ -251,8 +252,9 @@ def _capture(scenario: Scenario, built: Built, main: CaptureEstimates | None, gr
         if hold is not None:
             rates = [background]
             cloud = _final_cloud([(found, 1.0)], particle.mass)
-            if cloud is not None and particle.moment > 0.0:
-                rates.append(majorana_rate(particle.mass, particle.moment, gradient, cloud.temperature))
+            weak = abs(float(np.asarray(particle.zeeman.derivative(0.0))))  # the moment near the zero
+            if cloud is not None and weak > 0.0:
+                rates.append(majorana_rate(particle.mass, weak, gradient, cloud.temperature))
             survival = float(hold_survival(hold.time, *rates))
         captures.append(StateCapture(label, share, particle.moment, particle, found, kept, error, after, survival))
     if hold is not None and not any(c.estimates.tracking is not None for c in captures):
