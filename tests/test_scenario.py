@@ -195,7 +195,8 @@ def _bounded_keys() -> list[tuple[str, str]]:
 
 
 def _kind(section: str, name: str) -> str:
-    cls = {"hold": sc.HoldSection}.get(section) or type(getattr(sc.load(DEMO), section))  # the demo has no [hold]
+    cls = ({"hold": sc.HoldSection, "detector": sc.DetectorSection}.get(section)  # the demo has neither
+           or type(getattr(sc.load(DEMO), section)))
     return next(spec_of(item).kind for item in dataclasses.fields(cls) if item.name == name)
 
 
@@ -213,7 +214,8 @@ def test_an_out_of_range_value_is_reported_with_the_listed_range(section: str, n
     bad: object = int(2 * high) + 1 if kind.endswith("integer") else 2 * high + 1.0
     bad = {"triple": [bad] * 3, "pairs": [[bad, bad]]}.get(kind, bad)
     data = sc.load(DEMO).to_dict()
-    data.setdefault(section, {"time": 1.0} if section == "hold" else {})[name] = bad  # [hold] time is required
+    required = {"hold": {"time": 1.0}, "detector": {"distance": 1.0, "radius": 1e-3}}  # keys these sections need
+    data.setdefault(section, dict(required.get(section, {})))[name] = bad
     with pytest.raises(TiltwellError) as caught:
         sc.from_dict(data)
     assert f"[{section}] {name}" in str(caught.value) and f"in {allowed}" in str(caught.value)

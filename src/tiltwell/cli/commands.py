@@ -1,6 +1,7 @@
 """The ``tiltwell`` command line.
 
-``tiltwell run FILE [--json]`` computes a scenario; ``tiltwell sweep FILE ...`` writes a
+``tiltwell run FILE [--json] [--trace CSV]`` computes a scenario (and writes the predicted
+time-of-flight traces at its ``[detector]``); ``tiltwell sweep FILE ...`` writes a
 trade-off table as CSV; ``tiltwell demo --out DIR`` writes the invented demo scenario and
 runs it; ``tiltwell figures FILE --out DIR [--formats pdf,svg,png]`` writes a scenario's
 figures; ``tiltwell keys`` lists every scenario key with unit and range;
@@ -36,7 +37,7 @@ from ..wells.acceptance import trap_acceptance
 from ..physics.hardware import ELECTRICAL_CAUTION
 from ..physics.constants import ATOMIC_MASS, BOHR_MAGNETON, millikelvin
 from ..physics.fields import IdealQuadrupole
-from ..workflows.report import build, summarise, timing
+from ..workflows.report import build, summarise, summarise_parts, timing
 from ..physics.species import catalogue, species
 from ..workflows.sweep import sweep, sweep_csv
 from ..workflows.demo import DEMO_SCENARIO
@@ -206,18 +207,30 @@ def _print_budget(summary: dict[str, Any]) -> None:
         print(f"  note: {note}")
 
 
-def _run(path: str, as_json: bool, progress: bool, timing_path: str | None) -> None:
+def _run(path: str, as_json: bool, progress: bool, timing_path: str | None, trace_path: str | None = None) -> None:
     scenario = scenario_module.load(path)
+    if trace_path is not None and scenario.detector is None:
+        raise TiltwellError("--trace needs a [detector] section in the scenario: distance [m] from the nozzle, "
+                            "radius [m] (and efficiency, time_bin [s])")
     if timing_path is not None:
         table = timing(scenario, build(scenario).schedule)
         if table is None:
             raise TiltwellError("--timing needs [deceleration] pitch [m] and peak_current [A] in the scenario")
         table.to_csv(timing_path)
-    summary = summarise(scenario, progress=progress)
+    summary, built, estimates, budget = summarise_parts(scenario, progress=progress)
     if as_json:
         print(json.dumps(summary))
     else:
         _print_run(summary)
+    if trace_path is not None:  # from the same estimates and budget as the summary
+        from ..workflows.traces import predicted_traces
+
+        traces = predicted_traces(scenario, estimates, built=built, budget=budget)
+        traces.to_csv(trace_path)
+        if not as_json:
+            packet = "none" if traces.packet_detected is None else f"{traces.packet_detected:.4g}"
+            print(f"wrote {trace_path}: detected per shot, free beam {traces.free_detected:.4g}, decelerated packet "
+                  f"{packet} ({traces.unit})")
 
 
 def _sweep(arguments: argparse.Namespace) -> None:
@@ -277,7 +290,8 @@ def _quadrupole(arguments: argparse.Namespace) -> None:
 
 #: What each subcommand of :func:`tiltwell.cli.parser.build_parser` runs.
 _COMMANDS: dict[str, Callable[[argparse.Namespace], None]] = {
-    "run": lambda arguments: _run(arguments.file, arguments.json, arguments.progress, arguments.timing),
+    "run": lambda arguments: _run(arguments.file, arguments.json, arguments.progress, arguments.timing,
+                                  arguments.trace),
     "sweep": _sweep,
     "demo": lambda arguments: _demo(arguments.out, arguments.json),
     "figures": _figures,

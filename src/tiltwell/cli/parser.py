@@ -43,6 +43,8 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--json", action="store_true", help="print one JSON object (SI units)")
     run.add_argument("--progress", action="store_true", help="show a progress bar for the trajectories")
     run.add_argument("--timing", metavar="CSV", help="also write the coil timing table (needs pitch, peak_current)")
+    run.add_argument("--trace", metavar="CSV", help="also write the predicted time-of-flight traces at the "
+                     "[detector] (free beam and decelerated packet per time bin)")
     sweeping = commands.add_parser("sweep", help="trade-off table over decelerations (or lengths), as CSV",
                                    description="Run a scenario at equally spaced decelerations (or lengths) "
                                                "and write one CSV row per point.")

@@ -17,7 +17,7 @@ the common colour-vision deficiencies; series that share an axis also differ in 
 style or marker, so no figure relies on colour alone.
 
 Modules, one kind of figure each: :mod:`.well` (the potential, a phase plane),
-:mod:`.curves` (against deceleration), :mod:`.trajectories` (survival, time of flight),
+:mod:`.curves` (against deceleration), :mod:`.trajectories` (survival, time of flight, detector traces),
 :mod:`.device` (the coil row and its device check), :mod:`.budget` (the yield budget), :mod:`.sets` (a scenario's named
 set), :mod:`.style` (the look) and :mod:`.export` (files).
 """
@@ -30,10 +30,10 @@ from .device import current_pulses, device_arrivals, device_phase_space, device_
 from .export import save, write_figures
 from .sets import coil_figures, scenario_drawings, scenario_figures
 from .style import PALETTE
-from .trajectories import survival, time_of_flight
+from .trajectories import detector_traces, survival, time_of_flight
 from .well import phase_plane, potential
 
-__all__ = ["PALETTE", "acceptance_against_deceleration", "coil_figures", "current_pulses", "device_arrivals",
-           "device_phase_space", "device_survival", "phase_plane", "phase_scan", "potential", "save",
+__all__ = ["PALETTE", "acceptance_against_deceleration", "coil_figures", "current_pulses", "detector_traces",
+           "device_arrivals", "device_phase_space", "device_survival", "phase_plane", "phase_scan", "potential", "save",
            "scenario_drawings", "scenario_figures", "survival", "time_of_flight", "tradeoff_plot", "write_figures",
            "yield_waterfall"]

@@ -29,9 +29,9 @@ from .assemble import Built, build, timing
 from .devicemodel import model_of, phase_acceptances
 from .rowtrack import estimate
 from .scenario import Scenario
-from .yields import YIELD_UNITS, yield_budget
+from .yields import YIELD_UNITS, YieldBudget, yield_budget
 
-__all__ = ["Built", "UNITS", "build", "estimate", "summarise", "timing", "worst_phase"]
+__all__ = ["Built", "UNITS", "build", "estimate", "summarise", "summarise_parts", "timing", "worst_phase"]
 
 #: SI unit of every number in a summary.
 UNITS: dict[str, str] = {
@@ -75,6 +75,14 @@ def worst_phase(scenario: Scenario, built: Built) -> tuple[float, float, float]:
 def summarise(scenario: Scenario, *, progress: bool = False) -> dict[str, Any]:
     """All numbers of a scenario as a JSON-ready dict (SI), with a ``units`` map; the
     ``trap_model`` and ``bound`` keys and the worst phase are described in the module notes."""
+    return summarise_parts(scenario, progress=progress)[0]
+
+
+def summarise_parts(scenario: Scenario, *, progress: bool = False
+                    ) -> tuple[dict[str, Any], Built, CaptureEstimates, YieldBudget]:
+    """:func:`summarise`'s dict with the physics objects, estimates and yield budget behind
+    it, for callers that go on from them (the predicted detector traces) without computing
+    them again."""
     built = build(scenario)
     sim = scenario.simulation
     schedule = built.schedule
@@ -95,7 +103,7 @@ def summarise(scenario: Scenario, *, progress: bool = False) -> dict[str, Any]:
         summary["coils"] = int(table.positions.size)
         summary["caution"] = ELECTRICAL_CAUTION
     summary["units"] = {key: UNITS[key] for key in summary if key in UNITS}
-    return summary
+    return summary, built, estimates, budget
 
 
 def _numbers(built: Built, estimates: CaptureEstimates, samples: int) -> dict[str, Any]:
