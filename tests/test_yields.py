@@ -228,3 +228,18 @@ def test_hold_takes_the_weak_field_moment_of_a_breit_rabi_state() -> None:
     rate = 0.16 * C.hbar / built.species.mass * (weak * 1000.0 / (C.k * temperature)) ** 2
     assert state.hold == pytest.approx(math.exp(-0.5 * rate), rel=1e-6)
     assert state.moment > 1.5 * weak  # the slope at 1 T would overstate the rate
+
+
+def test_a_state_without_a_moment_at_the_zero_is_kept_out_of_the_spin_flip_check() -> None:
+    """Hydrogen |F=1, mF=0> seeks low fields (its Breit-Rabi energy rises with |B|) but has no
+    linear moment at the zero, where the Landau-Zener picture needs one: the summary counts
+    its captured fraction without flips and says so, instead of failing."""
+    data = quadrupole(pressure=PRESSURE, seed_fraction=SEED).to_dict()
+    data["species"] = {"name": "H"}
+    data["simulation"]["spin_flips"] = True
+    found = summarise(sc.from_dict(data))
+    labels = [s["label"] for s in found["states"]]
+    assert labels == ["2S1/2 F=1 mF=1", "2S1/2 F=1 mF=0"] and found["trappable_fraction"] == pytest.approx(0.5)
+    assert any("mF=0: it has no moment at the field zero" in note for note in found["yield_notes"])
+    zero = found["states"][1]
+    assert zero["after_spin_flips"] == zero["captured_fraction"]

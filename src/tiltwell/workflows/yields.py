@@ -241,7 +241,12 @@ def _capture(scenario: Scenario, built: Built, main: CaptureEstimates | None, gr
     gradient = _axial_gradient(built.trap) if hold is not None else math.nan
     captures = []
     for label, share, particle in groups:
-        found = _estimates_for(scenario, built, particle, main)
+        weak = abs(float(np.asarray(particle.zeeman.derivative(0.0))))  # the moment at the zero
+        state_scenario = scenario
+        if sim.spin_flips and weak == 0.0:  # no linear moment at the zero: no Landau-Zener picture
+            state_scenario = scenario.replace("simulation", spin_flips=False)
+            notes.append(f"spin flips not counted for {label}: it has no moment at the field zero")
+        found = _estimates_for(state_scenario, built, particle, main)
         if math.isfinite(found.tracked):  # tracked (0 kept, and no tracking, without a bound well)
             kept, error = found.tracked, found.tracked_error
             after = kept if found.tracking is None else found.tracking.kept_after_flips
@@ -252,7 +257,6 @@ def _capture(scenario: Scenario, built: Built, main: CaptureEstimates | None, gr
         if hold is not None:
             rates = [background]
             cloud = _final_cloud([(found, 1.0)], particle.mass)
-            weak = abs(float(np.asarray(particle.zeeman.derivative(0.0))))  # the moment near the zero
             if cloud is not None and weak > 0.0:
                 rates.append(majorana_rate(particle.mass, weak, gradient, cloud.temperature))
             survival = float(hold_survival(hold.time, *rates))
