@@ -39,7 +39,7 @@ from tiltwell.workflows.figure_data import (
 from tiltwell.workflows.report import build, estimate
 
 COMMAND = [sys.executable, "-m", "tiltwell"]
-SUBCOMMANDS = ["run", "sweep", "demo", "figures", "keys", "species", "quadrupole", "coils"]
+SUBCOMMANDS = ["run", "sweep", "demo", "figures", "keys", "species", "quadrupole", "coils", "calibrate"]
 #: Seconds a subprocess may take (imports included) before the test gives up on it.
 TIMEOUT = 120.0
 

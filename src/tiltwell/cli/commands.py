@@ -11,6 +11,7 @@ gives the acceptance of an ideal quadrupole trap of finite depth, a first estima
 ``tiltwell coils FILE [--json] [--csv FILE] [--track N] [--figures DIR]`` sizes the
 scenario's coil row (``[coils]``), writes its current waveform table, tracks N particles of
 the beam through the row and through its rigid twin, and draws it.
+``tiltwell calibrate FILE --trace CSV ...`` fits measured free-beam traces (:mod:`.calibrate`).
 Errors print one line and exit with status 2, never a traceback; output piped into a
 reader that stops early (``tiltwell keys | head -1``) ends quietly with status 0.
 ``tiltwell --version`` prints the version; the grammar is :mod:`.parser`.
@@ -42,6 +43,7 @@ from ..physics.species import catalogue, species
 from ..workflows.sweep import sweep, sweep_csv
 from ..workflows.demo import DEMO_SCENARIO
 from ..wells.traps import Trap
+from .calibrate import run_calibrate
 from .parser import build_parser
 
 
@@ -299,6 +301,7 @@ _COMMANDS: dict[str, Callable[[argparse.Namespace], None]] = {
     "species": lambda arguments: _print_species(arguments.name),
     "quadrupole": _quadrupole,
     "coils": _coils,
+    "calibrate": run_calibrate,
 }
 
 

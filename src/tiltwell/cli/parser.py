@@ -95,4 +95,22 @@ def build_parser() -> argparse.ArgumentParser:
                      "and through its rigid twin (slow: minutes for 1e5)")
     row.add_argument("--figures", metavar="DIR", help="write the coil figures (PNG) to this folder")
     row.add_argument("--progress", action="store_true", help="progress bars while tracking")
+    fitting = commands.add_parser("calibrate", help="fit measured free-beam traces: speed, spread, valve delay",
+                                  description="Fit measured free-beam time-of-flight traces (CSV: time [s], signal; "
+                                              "# comments) for the beam's velocity, relative spread, the valve's "
+                                              "time offset, and a scale and background per trace.")
+    fitting.add_argument("file", help="scenario file (TOML); its [beam] valve_open_time and [detector] distance")
+    fitting.add_argument("--trace", action="append", required=True, metavar="CSV",
+                         help="a measured trace (repeat for traces at several distances)")
+    fitting.add_argument("--distance", action="append", type=float, metavar="D",
+                         help="detector distance [m] of each --trace, once per --trace in order "
+                              "(default: [detector] distance for all)")
+    fitting.add_argument("--fix", action="append", metavar="NAME=VALUE",
+                         help="hold a parameter (velocity, relative_spread, time_offset, scale, background), SI")
+    fitting.add_argument("--signal", choices=("counts", "analog"),
+                         help="likelihood: Poisson counts or Gaussian analog (default: counts when all "
+                              "samples are non-negative integers)")
+    fitting.add_argument("--json", action="store_true", help="print one JSON object (SI units)")
+    fitting.add_argument("--write", metavar="TOML", help="write the scenario with the fitted beam values")
+    fitting.add_argument("--force", action="store_true", help="allow --write over the input scenario")
     return parser
