@@ -218,3 +218,31 @@ def test_a_trace_cut_before_its_peak_is_refused() -> None:
     signal[-1], signal[-3] = signal[-2] - 1.0, signal[-2] + 5.0
     with pytest.raises(TiltwellError, match=r"^trace synthetic, line \d+: the fitted peak .* does not contain the peak$"):
         fit_traces([as_trace(times, signal)], [0.3], TAU, fix={"time_offset": TRUE["time_offset"]})
+
+
+def test_fit_figure_draws_the_data_the_model_and_poisson_residuals(tmp_path: Path, scenario_file: Path) -> None:
+    """The drawn fit is the fitted model re-evaluated here from the reported parameters with
+    the flux closed form (tiltwell.physics.arrival.binned_flux over the trace's bins, a check
+    of Calibration.fitted too), the residuals (data - model) / sqrt(model)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from tiltwell.figures import calibration_fit
+    from tiltwell.physics.arrival import binned_flux
+
+    times, signal = sample(3, scale=2.0e4)
+    trace = as_trace(times, signal)
+    result = fit_traces([trace], [0.3], TAU)
+    by_hand = result.scales[0] * binned_flux(trace.edges - result.time_offset, 0.3, result.velocity,
+                                             result.relative_spread * result.velocity, TAU) + result.backgrounds[0]
+    figure = calibration_fit(result, [trace])
+    top, bottom = figure.axes
+    lines = {line.get_gid(): line for ax in (top, bottom) for line in ax.get_lines()}
+    np.testing.assert_allclose(lines["fit-0"].get_ydata(), by_hand, rtol=1e-12)
+    np.testing.assert_array_equal(lines["data-0"].get_ydata(), signal)
+    np.testing.assert_allclose(lines["residual-0"].get_ydata(), (signal - by_hand) / np.sqrt(np.maximum(by_hand, 1.0)),
+                               rtol=1e-12)
+    np.testing.assert_allclose(lines["data-0"].get_xdata(), times * 1e3, rtol=1e-15)
+    path = write_csv(tmp_path / "t.csv", times, signal)
+    assert main(["calibrate", str(scenario_file), "--trace", str(path), "--figure", str(tmp_path / "fit.png")]) == 0
+    assert (tmp_path / "fit.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"

@@ -10,7 +10,7 @@ import json
 
 from .._base.validation import TiltwellError
 from ..workflows import scenario as scenario_module
-from ..workflows.calibration import PARAMETERS, Calibration, calibrate, write_calibrated
+from ..workflows.calibration import PARAMETERS, Calibration, calibrate, read_trace, write_calibrated
 
 __all__ = ["run_calibrate"]
 
@@ -61,6 +61,10 @@ def run_calibrate(arguments: argparse.Namespace) -> None:
     result = calibrate(scenario, arguments.trace, distances, counts=counts, fix=_fixes(arguments.fix))
     if arguments.write is not None:
         write_calibrated(scenario, result, arguments.write, source=arguments.file, force=arguments.force)
+    if arguments.figure is not None:
+        from ..figures import calibration_fit, save  # matplotlib only when a figure is asked for
+
+        save(calibration_fit(result, [read_trace(path) for path in arguments.trace]), arguments.figure)
     if arguments.json:
         print(json.dumps(result.to_dict()))
         return

@@ -113,4 +113,5 @@ def build_parser() -> argparse.ArgumentParser:
     fitting.add_argument("--json", action="store_true", help="print one JSON object (SI units)")
     fitting.add_argument("--write", metavar="TOML", help="write the scenario with the fitted beam values")
     fitting.add_argument("--force", action="store_true", help="allow --write over the input scenario")
+    fitting.add_argument("--figure", metavar="FILE", help="draw data, fit and residuals (PDF, SVG or PNG)")
     return parser

@@ -30,10 +30,10 @@ from .device import current_pulses, device_arrivals, device_phase_space, device_
 from .export import save, write_figures
 from .sets import coil_figures, scenario_drawings, scenario_figures
 from .style import PALETTE
-from .trajectories import detector_traces, survival, time_of_flight
+from .trajectories import calibration_fit, detector_traces, survival, time_of_flight
 from .well import phase_plane, potential
 
-__all__ = ["PALETTE", "acceptance_against_deceleration", "coil_figures", "current_pulses", "detector_traces",
+__all__ = ["PALETTE", "acceptance_against_deceleration", "calibration_fit", "coil_figures", "current_pulses", "detector_traces",
            "device_arrivals", "device_phase_space", "device_survival", "phase_plane", "phase_scan", "potential", "save",
            "scenario_drawings", "scenario_figures", "survival", "time_of_flight", "tradeoff_plot", "write_figures",
            "yield_waterfall"]

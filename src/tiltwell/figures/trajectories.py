@@ -8,15 +8,17 @@ from __future__ import annotations
 
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
+import numpy as np
 from numpy.typing import ArrayLike
 
 from .._base.validation import TiltwellError
 from ..coils.schedule import arrival_histogram
 from ..dynamics.tracking import TrackingResult
+from ..workflows.calibration import Calibration, Trace
 from ..workflows.traces import Traces
 from .style import PALETTE, add_legend, canvas, styled
 
-__all__ = ["detector_traces", "survival", "time_of_flight"]
+__all__ = ["calibration_fit", "detector_traces", "survival", "time_of_flight"]
 
 
 @styled
@@ -72,4 +74,35 @@ def detector_traces(traces: Traces, *, ax: Axes | None = None) -> Figure:
     ax.set_ylabel("detected per bin " + ("[particles per shot]" if traces.absolute else "[relative]"))
     ax.set_title("predicted time of flight to the detector")
     add_legend(ax, loc="upper right")
+    return figure
+
+
+@styled
+def calibration_fit(calibration: Calibration, traces: list[Trace]) -> Figure:
+    """Measured traces, the fit and its residuals against time [ms]: above, each trace's
+    samples (gid ``data-k``) and the fitted signal (gid ``fit-k``); below, the residuals
+    (gid ``residual-k``), normalised by the model's Poisson sigma for counts, in signal
+    units for an analog trace (:class:`tiltwell.workflows.calibration.Calibration`)."""
+    if not isinstance(calibration, Calibration):
+        raise TiltwellError(f"calibration must be a Calibration; got {type(calibration).__name__}")
+    if len(traces) != len(calibration.paths):
+        raise TiltwellError(f"traces must be the {len(calibration.paths)} fitted trace(s); got {len(traces)}")
+    figure = Figure(figsize=(6.0, 4.5), layout="constrained")
+    top, bottom = figure.subplots(2, 1, sharex=True, height_ratios=(3, 1))
+    colours = (PALETTE["blue"], PALETTE["teal"], PALETTE["rose"])
+    for k, trace in enumerate(traces):
+        model = calibration.fitted(trace, k)
+        ms = trace.times * 1e3
+        colour = colours[k % len(colours)]
+        top.plot(ms, trace.signal, ".", ms=2.5, color=colour, gid=f"data-{k}", label=f"measured at {calibration.distances[k]:g} m")
+        top.plot(ms, model, "-", lw=1.0, color=PALETTE["ink"], gid=f"fit-{k}", label="fit" if k == 0 else None)
+        scale = np.sqrt(np.maximum(model, 1.0)) if calibration.counts else 1.0
+        bottom.plot(ms, (trace.signal - model) / scale, ".", ms=2.0, color=colour, gid=f"residual-{k}")
+    bottom.axhline(0.0, color=PALETTE["ink"], lw=0.6)
+    top.set_ylabel("signal per sample")
+    bottom.set_ylabel("residual / sigma" if calibration.counts else "residual")
+    bottom.set_xlabel("time after the trigger [ms]")
+    top.set_title(f"free-beam trace: {calibration.velocity:.4g} ± {calibration.velocity_error:.2g} m/s, "
+                  f"spread {calibration.relative_spread:.3g}")
+    add_legend(top, loc="upper right")
     return figure

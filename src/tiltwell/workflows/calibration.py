@@ -172,6 +172,8 @@ class Calibration:
         The trace files.
     fixed : dict
         The parameters held, name to value.
+    open_time : float
+        The valve's open time the model used [s].
     """
 
     velocity: float
@@ -191,6 +193,14 @@ class Calibration:
     distances: tuple[float, ...]
     paths: tuple[str, ...]
     fixed: dict[str, float]
+    open_time: float
+
+    def fitted(self, trace: Trace, index: int = 0) -> FloatArray:
+        """The fitted signal on ``trace``'s samples, with trace ``index``'s scale and
+        background (the same model the fit minimised)."""
+        full = np.array([self.velocity, self.relative_spread, self.time_offset, self.scales[index],
+                         self.backgrounds[index]])
+        return _model(full, [trace], [self.distances[index]], self.open_time)
 
     def to_dict(self) -> dict[str, Any]:
         """The DESIGN.md keys (``scale``, ``background`` of the first trace), the correlation
@@ -342,7 +352,7 @@ def fit_traces(traces: list[Trace], distances: list[float], open_time: float, *,
                        float(errors[2]), tuple(map(float, best[3::2])), tuple(map(float, errors[3::2])),
                        tuple(map(float, best[4::2])), tuple(map(float, errors[4::2])),
                        tuple(n for n, f in zip(names, free) if f), correlation, chi2, poisson, tuple(lengths),
-                       tuple(t.path for t in traces), {k: float(v) for k, v in fix.items()})
+                       tuple(t.path for t in traces), {k: float(v) for k, v in fix.items()}, float(tau))
 
 
 def _check_peaks(traces: list[Trace], distances: list[float], open_time: float, best: FloatArray) -> None:
