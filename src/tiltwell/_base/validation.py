@@ -19,6 +19,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 __all__ = [
+    "read_only_copy",
     "Interval",
     "TiltwellError",
     "look_up",
@@ -285,3 +286,11 @@ def look_up(name: Any, index: Mapping[str, str], what: str, listing: str) -> str
     close = dict.fromkeys(index[k] for k in difflib.get_close_matches(key, list(index), n=6, cutoff=0.5))
     hint = f"close matches: {', '.join(close)}" if close else "no close match"
     raise TiltwellError(f"unknown {what} {name!r}; {hint}. {listing}")
+
+
+def read_only_copy(values: ArrayLike) -> NDArray[Any]:
+    """A copy of ``values`` as a numpy array (its dtype kept) that cannot be written to: how
+    results hand out their arrays."""
+    copy = np.array(values)
+    copy.setflags(write=False)
+    return copy

@@ -25,7 +25,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .._base.display import html_table
-from .._base.validation import TiltwellError, as_finite_array, as_scalar
+from .._base.validation import TiltwellError, as_finite_array, as_scalar, read_only_copy
 from ..physics.constants import BOLTZMANN, PLANCK
 
 __all__ = ["CloudStats", "cloud_stats"]
@@ -34,11 +34,6 @@ Array = NDArray[np.float64]
 
 #: Fewest rows for which a variance means anything.
 MIN_PARTICLES = 2
-
-
-def _read_only(array: Array) -> Array:
-    array.setflags(write=False)
-    return array
 
 
 @dataclass(frozen=True, eq=False)
@@ -162,12 +157,12 @@ def cloud_stats(particles: ArrayLike, mass: float, *, scale: float = 1.0,
     return CloudStats(
         number=number,
         samples=samples,
-        centre=_read_only(mean[:3].copy()),
-        velocity=_read_only(mean[3:].copy()),
-        sizes=_read_only(sizes),
-        temperatures=_read_only(temperatures),
+        centre=read_only_copy(mean[:3]),
+        velocity=read_only_copy(mean[3:]),
+        sizes=read_only_copy(sizes),
+        temperatures=read_only_copy(temperatures),
         temperature=float(np.mean(temperatures)),
         density=density,
         phase_space_density=psd,
-        covariance=_read_only(covariance),
+        covariance=read_only_copy(covariance),
     )

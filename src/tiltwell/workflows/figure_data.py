@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from .._base.validation import TiltwellError
+from .._base.validation import TiltwellError, read_only_copy
 from ..coils.array import CurrentPlan
 from ..coils.moving import PhaseScan
 from ..dynamics.tracking import TrackingResult
@@ -47,13 +47,6 @@ ACCEPTANCE_POINTS = 45
 #: The coil-current figure shows the coils that carry current while the trap crosses its
 #: first this many pitches, where it is fastest (and the pulses are shortest).
 CURRENT_PITCHES = 3.0
-
-
-def _frozen(values: NDArray[Any]) -> NDArray[Any]:
-    """A read-only copy."""
-    copy = np.array(values)
-    copy.setflags(write=False)
-    return copy
 
 
 @dataclass(frozen=True, eq=False)
@@ -92,7 +85,7 @@ def coil_figure_data(run: CoilRun, scan: PhaseScan) -> CoilFigureData:
     plan = run.plan
     rows = slice(0, max(int(np.count_nonzero(plan.positions <= CURRENT_PITCHES * run.array.pitch)), 2))
     early = CurrentPlan(plan.positions[rows], plan.currents[rows], plan.gradient[rows], plan.limited[rows])
-    return CoilFigureData(early, _frozen(run.times[rows]), scan, _frozen(run.array.positions))
+    return CoilFigureData(early, read_only_copy(run.times[rows]), scan, read_only_copy(run.array.positions))
 
 
 @dataclass(frozen=True, eq=False)
@@ -175,7 +168,7 @@ def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) ->
     tracking = estimates.tracking
     assert estimates.sample is not None  # capture_estimates always records its sample
     sample = estimates.sample[:DRAWN_PARTICLES]  # the particles counted and tracked, trap frame
-    kept = None if tracking is None else _frozen(tracking.kept[:DRAWN_PARTICLES])
+    kept = None if tracking is None else read_only_copy(tracking.kept[:DRAWN_PARTICLES])
     critical = built.trap.critical_deceleration(sim.samples)
     curve, rows = None, None
     if critical > 0.0:
@@ -188,7 +181,7 @@ def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) ->
         coils = coil_figure_data(run, coil_scan(scenario, run))
     arrivals = None
     if tracking is not None and sim.detector_distance is not None:
-        arrivals = _frozen(estimates.arrival_times(plan.final_velocity, sim.detector_distance))
+        arrivals = read_only_copy(estimates.arrival_times(plan.final_velocity, sim.detector_distance))
     budget = yield_budget(scenario, built, estimates) if scenario.beam.pressure is not None else None
     return ScenarioFigureData(trap=built.trap, trap_model=built.trap_model, deceleration=a,
                               acceptance=estimates.acceptance, beam=built.beam, mismatch=built.mismatch,

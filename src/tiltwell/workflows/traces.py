@@ -31,14 +31,13 @@ import math
 import os
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
 from .._base.display import html_table
 from .._base.files import table_text, write_table
-from .._base.validation import TiltwellError
+from .._base.validation import TiltwellError, read_only_copy
 from ..coils.schedule import arrival_times
 from ..dynamics.capture import CaptureEstimates
 from ..physics.arrival import binned_flux
@@ -122,12 +121,6 @@ class Traces:
                 ("packet detected", "—" if self.packet_detected is None else f"{self.packet_detected:.4g}"),
                 ("unit", self.unit), ("bins", f"{self.free.size}")]
         return html_table("Predicted time-of-flight traces", rows)
-
-
-def _frozen(values: NDArray[Any]) -> FloatArray:
-    out = np.array(values, dtype=np.float64)
-    out.setflags(write=False)
-    return out
 
 
 def _relative_slow(budget: YieldBudget) -> float:
@@ -230,7 +223,7 @@ def predicted_traces(scenario: Scenario, estimates: CaptureEstimates | None = No
         packet_detected = slow * packet_share * detector.efficiency
         counts, _ = np.histogram(release_time + times, bins=edges, weights=weights)
         total = float(weights.sum())
-        packet_trace = _frozen(counts * (packet_detected / total if total > 0.0 else 0.0))
-    return Traces(_frozen(edges), _frozen(free), packet_trace, float(free.sum()), packet_detected, free_share,
+        packet_trace = read_only_copy(counts * (packet_detected / total if total > 0.0 else 0.0))
+    return Traces(read_only_copy(edges), read_only_copy(free), packet_trace, float(free.sum()), packet_detected, free_share,
                   packet_share, release, release_time, absolute, ABSOLUTE_UNIT if absolute else RELATIVE_UNIT,
                   tuple(notes))
