@@ -85,11 +85,7 @@ def _one_chunk(task: tuple[Trap, Beam, int, np.random.SeedSequence, float, float
                ) -> tuple[int, int, FloatArray, FloatArray, float]:
     """Track one chunk; a top-level function so process and cluster executors can send it."""
     trap, beam, size, sequence, duration, time_step, options = task
-    normals = np.random.default_rng(sequence).standard_normal((size, 6))
-    factor = np.linalg.cholesky(beam.covariance())
-    particles = np.zeros_like(normals)
-    for k in range(6):  # column by column, as Beam.chunks does
-        particles += normals[:, k : k + 1] * factor[:, k]
+    particles = beam.from_normals(np.random.default_rng(sequence).standard_normal((size, 6)))
     particles[:, 5] -= options.pop("mismatch")
     result = track(trap, particles, duration, time_step, **options)
     weights = result.survival_weights

@@ -19,6 +19,7 @@ from __future__ import annotations
 import math
 from collections.abc import Iterator
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -183,15 +184,14 @@ class Beam:
 
         def draw() -> Iterator[Array]:
             for start in range(0, n, chunk):
-                normals = rng.standard_normal((min(chunk, n - start), 6))
-                # column by column, not a BLAS product: every row's rounding is then the same
-                # whatever the chunk length, so chunk sizes never change the particles
-                particles = np.zeros_like(normals)
-                for k in range(6):
-                    particles += normals[:, k : k + 1] * factor[:, k]
-                yield particles
+                yield _shaped(rng.standard_normal((min(chunk, n - start), 6)), factor)
 
         return draw()
+
+    def from_normals(self, normals: Array) -> Array:
+        """Particles (m, 6) [m, m/s] from standard normals (m, 6) of any generator, shaped
+        by the Cholesky factor of :meth:`covariance` as :meth:`chunks` shapes its own."""
+        return _shaped(normals, np.linalg.cholesky(self.covariance()))
 
     def sample(self, n: int, seed: int | None = 0) -> Array:
         """``n`` particles as an (n, 6) array (x, y, z, vx, vy, vz) [m, m/s] relative to the
@@ -211,3 +211,12 @@ class Beam:
             rows.append((name, f"σ {p.sigma_position * 1e3:.3g} mm, σv {p.sigma_velocity:.3g} m/s, "
                                f"ε {p.emittance * 1e3:.3g} mm·m/s"))
         return html_table("Beam", rows)
+
+
+def _shaped(normals: Array, factor: NDArray[np.floating[Any]]) -> Array:
+    """``normals @ factor.T`` column by column, not a BLAS product: every row's rounding is
+    then the same whatever the number of rows, so chunk sizes never change the particles."""
+    particles = np.zeros_like(normals)
+    for k in range(6):
+        particles += normals[:, k : k + 1] * factor[:, k]
+    return particles
