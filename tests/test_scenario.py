@@ -195,7 +195,7 @@ def _bounded_keys() -> list[tuple[str, str]]:
 
 
 def _kind(section: str, name: str) -> str:
-    cls = ({"hold": sc.HoldSection, "detector": sc.DetectorSection}.get(section)  # the demo has neither
+    cls = ({"hold": sc.HoldSection, "detector": sc.DetectorSection}.get(section)  # the demo has no [hold]
            or type(getattr(sc.load(DEMO), section)))
     return next(spec_of(item).kind for item in dataclasses.fields(cls) if item.name == name)
 

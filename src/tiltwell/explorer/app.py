@@ -41,6 +41,7 @@ from . import readouts, views
 from .checks import budget_state, monte_carlo, monte_carlo_state, slow_particles, tracked_particles, volume_6d
 from .coilmodel import default_settings as default_coils
 from .coils import CoilPart
+from .detector import DetectorPart
 from .model import Model, Picture, Settings, as_scenario
 from .plumbing import Callbacks, bokeh_views, display_with_bokehjs, reserialise, start
 from .tasks import Tasks
@@ -105,6 +106,10 @@ class Explorer:
         Unexpected errors caught in callbacks (a bug if not empty); also logged.
     coil_array : tiltwell.explorer.coils.CoilPart
         The coil-array part (a closed section under the buttons; it computes only while open).
+    detector : tiltwell.explorer.detector.DetectorPart
+        The detector part (a closed section under it): predicted time-of-flight traces, and
+        a measured trace loaded and drawn over them. A Monte-Carlo check of a scenario with
+        a ``[detector]`` also predicts its traces.
     """
 
     def __init__(self, scenario: Scenario | str | os.PathLike[str] | None = None, *,
@@ -138,7 +143,9 @@ class Explorer:
         self.widget = make_layout(self.controls, self.actions, self.readouts, self.views, self.message,
                                   self.status, self.deceleration_box)
         self.coil_array = CoilPart(default_coils(self._model), self._lock, self._unexpected)
-        self.widget.children = (*self.widget.children[:-1], self.coil_array.section, self.widget.children[-1])
+        self.detector = DetectorPart(self._lock, self._unexpected)
+        self.widget.children = (*self.widget.children[:-1], self.coil_array.section, self.detector.section,
+                                self.widget.children[-1])
         for name, control in self.controls.items():
             if name == "log_scale":
                 on.observe(control, self._on_log_scale, even_when_quiet=True)
@@ -176,6 +183,7 @@ class Explorer:
         with self._lock:
             reserialise(self.views, self.figures)
             self.coil_array.fresh()
+            self.detector.fresh()
         return self.widget
 
     # --- settings -----------------------------------------------------------------------------
@@ -254,6 +262,7 @@ class Explorer:
                     readout.value = "—"
                 self.message.value = readouts.warning(html.escape(str(error)))
                 self.coil_array.follow(None)
+                self.detector.follow(None)
                 return
             same = self._picture is not None and self._picture.settings == settings
             heavy = {key: self.state[key] for key in readouts.HEAVY if key in self.state} if same else {}
@@ -266,6 +275,7 @@ class Explorer:
                 key = settings.tradeoff_key
                 self._curve.schedule(lambda: self._model.tradeoff_inputs(settings), key, lambda: self._current(key))
             self.coil_array.follow(picture)
+            self.detector.follow(picture.scenario)
 
     def _show_readouts(self) -> None:
         for key, text in readouts.texts(self.state).items():
@@ -322,11 +332,12 @@ class Explorer:
                 views.draw(self.sources, self.figures, self.spans, self._picture, self.state["length"], tracked)
             self._show_readouts()
             self._start("yield budget", "slow particles per shot", "monte_carlo",
-                        lambda: slow_particles(scenario, estimates), show_budget)
+                        lambda: slow_particles(scenario, estimates), lambda budget: show_budget(budget, estimates))
 
-        def show_budget(budget: YieldBudget) -> None:
+        def show_budget(budget: YieldBudget, estimates: CaptureEstimates) -> None:
             self.state.update(budget_state(budget))
             self._show_readouts()
+            self.detector.take(scenario, estimates, budget)
 
         return self._start("Monte-Carlo check", f"Monte-Carlo check, {scenario.simulation.particles} particles",
                            "monte_carlo", lambda: monte_carlo(picture, scenario), apply)
@@ -351,6 +362,7 @@ class Explorer:
         """Start a pending trade-off update at once and wait for all background work."""
         self._tasks.flush(timeout)
         self.coil_array.wait(timeout)
+        self.detector.wait(timeout)
 
     def close(self) -> None:
         """Stop background work (waiting for a running task to end) and close the page.
@@ -358,6 +370,7 @@ class Explorer:
         jupyter_bokeh 4.1)."""
         self._tasks.shutdown()
         self.coil_array.close()
+        self.detector.close()
         self.widget.close()
 
     # --- files --------------------------------------------------------------------------------
