@@ -39,7 +39,7 @@ import tomli_w
 
 from .._base.files import atomic_write_text
 from .._base.validation import TiltwellError
-from .keys import UNCERTAINTY_SYNTAX, Uncertainties, key, spec_of
+from .keys import UNCERTAINTY_SYNTAX, KeySpec, Uncertainties, key, spec_of
 from .sections import CoilsSection, DetectorSection, HoldSection, LimitsSection
 
 __all__ = [
@@ -56,6 +56,7 @@ __all__ = [
     "Uncertainties",
     "box_half_widths",
     "describe",
+    "key_spec",
     "load",
     "loads",
     "save",
@@ -358,6 +359,20 @@ def dumps(scenario: Scenario) -> str:
 def save(scenario: Scenario, path: str | os.PathLike[str]) -> Path:
     """Write ``scenario`` to ``path`` atomically (temporary file, then rename)."""
     return atomic_write_text(Path(path), dumps(scenario))
+
+
+def key_spec(name: str) -> KeySpec:
+    """The :class:`~tiltwell.workflows.keys.KeySpec` of the key ``"section.key"``; an unknown
+    section or key is an error that suggests the close match."""
+    section, dot, key_name = str(name).partition(".")
+    if not dot:
+        raise TiltwellError(f"a key is named section.key (for example deceleration.deceleration); got {name!r}")
+    if section not in _SECTIONS:
+        raise _unknown("section", f"[{section}]", [f"[{known}]" for known in _SECTIONS])
+    specs = {item.name: spec_of(item) for item in dataclasses.fields(_SECTIONS[section])}
+    if key_name not in specs:
+        raise _unknown("key", key_name, list(specs), f"[{section}] ")
+    return specs[key_name]
 
 
 def describe() -> str:

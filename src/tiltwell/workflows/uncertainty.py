@@ -36,8 +36,8 @@ from scipy.stats import qmc
 
 from .._base.display import html_table
 from .._base.validation import TiltwellError, as_integer, as_scalar
-from .keys import KeySpec, spec_of
-from .scenario import Scenario
+from .keys import KeySpec
+from .scenario import Scenario, key_spec
 
 __all__ = ["LOW_PROBABILITY", "HIGH_PROBABILITY", "Propagation", "Sensitivity", "propagate", "with_systematic"]
 
@@ -179,12 +179,6 @@ def with_systematic(interval: tuple[float, float, float], spread: float) -> tupl
     return centre - math.hypot(centre - low, half), centre, centre + math.hypot(high - centre, half)
 
 
-def _spec(scenario: Scenario, name: str) -> KeySpec:
-    section, key_name = name.split(".")
-    fields = dataclasses.fields(getattr(scenario, section))
-    return next(spec_of(item) for item in fields if item.name == key_name)
-
-
 def _draw(nominals: FloatArray, sigmas: FloatArray, specs: list[KeySpec], samples: int, seed: int) -> FloatArray:
     """(samples, d) inputs: a scrambled Latin hypercube through each truncated Gaussian's
     inverse CDF. Not discrepancy-optimised: scipy's ``random-cd`` narrows the interval's
@@ -283,7 +277,7 @@ def propagate(scenario: Scenario, evaluate: Callable[[Scenario], Any], *, sample
     if not inputs:
         raise TiltwellError("the scenario has no uncertain input: give a real-number key as "
                             "{ value = X, uncertainty = U } with U > 0")
-    specs = [_spec(scenario, name) for name in inputs]
+    specs = [key_spec(name) for name in inputs]
     nominals = np.array([getattr(getattr(scenario, name.split(".")[0]), name.split(".")[1]) for name in inputs],
                         dtype=float)
     sigmas = np.array([scenario.uncertainties[name] for name in inputs], dtype=float)
