@@ -6,7 +6,7 @@ The stable core (see DESIGN.md): :func:`separatrix`, :func:`loop_field`,
 The subpackages are the layers, imports pointing down only: :mod:`._base` (validation,
 display, files) and :mod:`.physics` (layer 1); :mod:`.wells`, :mod:`.coils` and
 :mod:`.dynamics` (layer 2, the computation); :mod:`.workflows` (layer 3: scenarios,
-reports, sweeps); :mod:`.figures`, :mod:`.explorer` and :mod:`.cli` (layer 4, the views).
+reports, sweeps, design searches); :mod:`.figures`, :mod:`.explorer` and :mod:`.cli` (layer 4, the views).
 """
 
 from typing import Any
@@ -49,6 +49,8 @@ from .dynamics.tracking import FieldMap, TrackingResult, track
 from .workflows import scenario
 from .workflows.report import build, summarise
 from .workflows.scenario import Scenario
+from .workflows.optimise import optimise, pareto_front
+from .workflows.search import parse_vary, read_search, search
 from .workflows.sweep import sweep
 from .workflows.yields import YieldBudget, yield_budget
 
@@ -137,9 +139,14 @@ __all__ = [
     "mixture",
     "moving_trap_phases",
     "mutual_inductance",
+    "optimise",
+    "pareto_front",
+    "parse_vary",
     "plane_product_fraction",
     "populations",
+    "read_search",
     "scenario",
+    "search",
     "separatrix",
     "species",
     "states",
