@@ -39,7 +39,7 @@ from tiltwell.workflows.figure_data import (
 from tiltwell.workflows.report import build, estimate
 
 COMMAND = [sys.executable, "-m", "tiltwell"]
-SUBCOMMANDS = ["run", "sweep", "demo", "figures", "keys", "species", "quadrupole", "coils", "calibrate"]
+SUBCOMMANDS = ["run", "sweep", "search", "demo", "figures", "keys", "species", "quadrupole", "coils", "calibrate"]
 #: Seconds a subprocess may take (imports included) before the test gives up on it.
 TIMEOUT = 120.0
 
@@ -135,7 +135,7 @@ def test_every_positional_argument_has_help(name: str) -> None:
     positional = [action for action in sub._actions if not action.option_strings]
     for action in positional:
         assert action.help and action.help != argparse.SUPPRESS, f"{name} {action.dest}"
-    if name in ("run", "sweep", "figures", "coils"):
+    if name in ("run", "sweep", "search", "figures", "coils"):
         assert [action.dest for action in positional] == ["file"]
 
 

@@ -11,7 +11,9 @@ gives the acceptance of an ideal quadrupole trap of finite depth, a first estima
 ``tiltwell coils FILE [--json] [--csv FILE] [--track N] [--figures DIR]`` sizes the
 scenario's coil row (``[coils]``), writes its current waveform table, tracks N particles of
 the beam through the row and through its rigid twin, and draws it.
-``tiltwell calibrate FILE --trace CSV ...`` fits measured free-beam traces (:mod:`.calibrate`).
+``tiltwell calibrate FILE --trace CSV ...`` fits measured free-beam traces (:mod:`.calibrate`);
+``tiltwell search FILE --vary KEY=LOW:HIGH[:N] ... --out DIR`` runs a design search or, with
+``--optimise FIGURE``, finds the best design under the limits (:mod:`.search`).
 Errors print one line and exit with status 2, never a traceback; output piped into a
 reader that stops early (``tiltwell keys | head -1``) ends quietly with status 0.
 ``tiltwell --version`` prints the version; the grammar is :mod:`.parser`.
@@ -282,6 +284,12 @@ def _coils(arguments: argparse.Namespace) -> None:
     coils_command(arguments)
 
 
+def _search(arguments: argparse.Namespace) -> None:
+    from .search import search_command  # the search modules load only for this command
+
+    search_command(arguments)
+
+
 def _quadrupole(arguments: argparse.Namespace) -> None:
     summary = quadrupole_summary(arguments.species, arguments.gradient, arguments.max_field, arguments.deceleration)
     if arguments.json:
@@ -302,6 +310,7 @@ _COMMANDS: dict[str, Callable[[argparse.Namespace], None]] = {
     "quadrupole": _quadrupole,
     "coils": _coils,
     "calibrate": run_calibrate,
+    "search": _search,
 }
 
 

@@ -15,8 +15,8 @@ tiltwell: how hard can a moving magnetic trap decelerate a beam of paramagnetic 
 molecules and still keep them? From a scenario file (TOML: species, trap, beam source,
 deceleration, simulation, optional coil row) it computes the longitudinal, transverse and
 6-D acceptance of the tilted trap, the fraction of the beam captured and kept (phase-space
-overlap, energetic 6-D count, trajectories), trade-off sweeps, the coil row's currents and
-figures for proposals. SI units throughout."""
+overlap, energetic 6-D count, trajectories), trade-off sweeps, design searches under the
+hardware limits, the coil row's currents and figures for proposals. SI units throughout."""
 
 #: Examples under the subcommand list of ``tiltwell --help``.
 EPILOG = """\
@@ -25,6 +25,7 @@ examples:
   tiltwell run demo/demo.toml --json        one JSON object of SI numbers
   tiltwell keys                             every scenario key with unit and range
   tiltwell figures demo/demo.toml --out demo/figures
+  tiltwell search demo/demo.toml --vary deceleration.length=2:4:5 --out demo/search
 
 Errors print one line and exit with status 2. `python -m tiltwell` is the same command."""
 
@@ -56,6 +57,26 @@ def build_parser() -> argparse.ArgumentParser:
     sweeping.add_argument("--out", help="CSV file to write (default: standard output)")
     sweeping.add_argument("--workers", type=int, default=1, help="processes to use, default 1")
     sweeping.add_argument("--quiet", action="store_true", help="no progress bar")
+    looking = commands.add_parser("search", help="design search over several keys, or the best design under limits",
+                                  description="Vary scenario keys together over a grid, a list or a space-filling "
+                                              "sample; every point a whole summary with its hardware verdicts; or, "
+                                              "with --optimise, find the best design within the limits. Results "
+                                              "are kept point by point: the same command resumes a stopped search.")
+    looking.add_argument("file", help="scenario file (TOML)")
+    looking.add_argument("--vary", action="append", required=True, metavar="KEY=LOW:HIGH[:N]",
+                         help="a varied key, section.key=LOW:HIGH[:N][:log] (N points: a grid) or section.key=A,B,C "
+                              "(a list); repeat for each key")
+    looking.add_argument("--sample", type=int, metavar="N", help="N space-filling points over the ranges instead of a grid")
+    looking.add_argument("--method", choices=("lhs", "sobol"), default="lhs",
+                         help="sample: Latin hypercube (default) or Sobol' (scipy.stats.qmc)")
+    looking.add_argument("--seed", type=int, default=0, help="seed of the sample and of the optimiser, default 0")
+    looking.add_argument("--max-length", type=float, metavar="M", help="device-length limit [m]")
+    looking.add_argument("--optimise", metavar="FIGURE", help="maximise this column (slow_particles, "
+                         "captured_fraction_energy, ...) within the limits instead of a search")
+    looking.add_argument("--out", required=True, help="folder for the results (created if missing)")
+    looking.add_argument("--workers", type=int, default=1, help="processes to use, at most the cores; default 1")
+    looking.add_argument("--json", action="store_true", help="print one JSON object")
+    looking.add_argument("--quiet", action="store_true", help="no progress bar")
     demo = commands.add_parser("demo", help="write the invented demo scenario and run it",
                                description="Write the invented demo scenario and its summary to a folder.")
     demo.add_argument("--out", required=True, help="folder for the demo files")

@@ -18,8 +18,9 @@ style or marker, so no figure relies on colour alone.
 
 Modules, one kind of figure each: :mod:`.well` (the potential, a phase plane),
 :mod:`.curves` (against deceleration), :mod:`.trajectories` (survival, time of flight, detector traces),
-:mod:`.device` (the coil row and its device check), :mod:`.budget` (the yield budget), :mod:`.sets` (a scenario's named
-set), :mod:`.style` (the look) and :mod:`.export` (files).
+:mod:`.device` (the coil row and its device check), :mod:`.budget` (the yield budget),
+:mod:`.search` (a design search's front and map), :mod:`.sets` (a scenario's named set),
+:mod:`.style` (the look) and :mod:`.export` (files).
 """
 
 from __future__ import annotations
@@ -28,12 +29,14 @@ from .budget import yield_waterfall
 from .curves import acceptance_against_deceleration, tradeoff_plot
 from .device import current_pulses, device_arrivals, device_phase_space, device_survival, phase_scan
 from .export import save, write_figures
+from .search import design_front, design_map
 from .sets import coil_figures, scenario_drawings, scenario_figures
 from .style import PALETTE
 from .trajectories import calibration_fit, detector_traces, survival, time_of_flight
 from .well import phase_plane, potential
 
-__all__ = ["PALETTE", "acceptance_against_deceleration", "calibration_fit", "coil_figures", "current_pulses", "detector_traces",
-           "device_arrivals", "device_phase_space", "device_survival", "phase_plane", "phase_scan", "potential", "save",
+__all__ = ["PALETTE", "acceptance_against_deceleration", "calibration_fit", "coil_figures", "current_pulses",
+           "design_front", "design_map", "detector_traces", "device_arrivals", "device_phase_space", "device_survival",
+           "phase_plane", "phase_scan", "potential", "save",
            "scenario_drawings", "scenario_figures", "survival", "time_of_flight", "tradeoff_plot", "write_figures",
            "yield_waterfall"]
