@@ -131,8 +131,8 @@ def test_the_part_is_a_closed_section_that_computes_only_when_open() -> None:
     try:
         part = app.coil_array
         children = list(app.widget.children)
-        # above the detector section and the electrical caution at the foot
-        assert children.index(part.section) == children.index(app.detector.section) - 1 == len(children) - 3
+        # above the detector and design sections and the electrical caution at the foot
+        assert children.index(part.section) == children.index(app.detector.section) - 1 == len(children) - 4
         assert part.section.titles == (TITLE,) and part.section.selected_index is None
         assert "tiltwell-coils" in part.widget._dom_classes
         app.controls["deceleration"].value = 0.3 * app.state["critical_deceleration"]

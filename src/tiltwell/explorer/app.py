@@ -29,7 +29,7 @@ import logging
 import math
 import os
 import threading
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from concurrent.futures import Future
 from pathlib import Path
 from typing import Any, TypeVar
@@ -41,6 +41,7 @@ from . import readouts, views
 from .checks import budget_state, monte_carlo, monte_carlo_state, slow_particles, tracked_particles, volume_6d
 from .coilmodel import default_settings as default_coils
 from .coils import CoilPart
+from .design import DesignPart, slider_values
 from .detector import DetectorPart
 from .model import Model, Picture, Settings, as_scenario
 from .plumbing import Callbacks, bokeh_views, display_with_bokehjs, reserialise, start
@@ -110,6 +111,8 @@ class Explorer:
         The detector part (a closed section under it): predicted time-of-flight traces, and
         a measured trace loaded and drawn over them. A Monte-Carlo check of a scenario with
         a ``[detector]`` also predicts its traces.
+    design : tiltwell.explorer.design.DesignPart
+        The design-space part (closed): a search's front, a chosen design into the sliders.
     """
 
     def __init__(self, scenario: Scenario | str | os.PathLike[str] | None = None, *,
@@ -144,8 +147,9 @@ class Explorer:
                                   self.status, self.deceleration_box)
         self.coil_array = CoilPart(default_coils(self._model), self._lock, self._unexpected)
         self.detector = DetectorPart(self._lock, self._unexpected)
+        self.design = DesignPart(self._use_design, self._unexpected)
         self.widget.children = (*self.widget.children[:-1], self.coil_array.section, self.detector.section,
-                                self.widget.children[-1])
+                                self.design.section, self.widget.children[-1])
         for name, control in self.controls.items():
             if name == "log_scale":
                 on.observe(control, self._on_log_scale, even_when_quiet=True)
@@ -184,6 +188,7 @@ class Explorer:
             reserialise(self.views, self.figures)
             self.coil_array.fresh()
             self.detector.fresh()
+            self.design.fresh()
         return self.widget
 
     # --- settings -----------------------------------------------------------------------------
@@ -209,6 +214,13 @@ class Explorer:
                 self.controls["deceleration"].value = values["deceleration_log"]
             sync_log(self.controls)
         self._callbacks.guard(self._refresh)
+
+    def _use_design(self, point: Mapping[str, float], row: Mapping[str, Any]) -> str:
+        values, elsewhere = slider_values(point, row, self.controls)
+        self.update(**values)
+        rest = "; not sliders, set them in the scenario file: " + ", ".join(
+            f"{name} = {value:.6g}" for name, value in elsewhere.items()) if elsewhere else ""
+        return "design in the sliders: " + ", ".join(f"{name} = {value:.6g}" for name, value in values.items()) + rest
 
     def reset(self) -> None:
         """Set every control back to the loaded scenario."""
