@@ -20,6 +20,7 @@ import bench_drive
 import bench_explorer
 import bench_fields
 import bench_report
+import bench_search
 import bench_separatrix
 import bench_tracking
 import bench_yield
@@ -61,7 +62,7 @@ def main() -> None:
     checks += checks_1
     rows += field_rows()
     for module in (bench_acceptance, bench_tracking, bench_device, bench_device_model, bench_drive, bench_report,
-                   bench_yield, bench_explorer):
+                   bench_yield, bench_search, bench_explorer):
         more_rows, more_checks = module.run()
         rows += more_rows
         checks += more_checks

@@ -53,13 +53,13 @@ def demo(**simulation: Any) -> sc.Scenario:
     return sc.load(DEMO_SCENARIO).replace("simulation", **simulation)
 
 
-def mean_magnitude(points: np.ndarray) -> np.ndarray:
+def mean_magnitude(points: np.ndarray, gradient: float = GRADIENT) -> np.ndarray:
     """(1/P) sum_j |B_j| at trap-frame ``points`` (N, 3): phase j puts the zero at
     z_ref + j pitch / P (z_ref the middle coil of the row, as documented for the twin), each
     coil summed here from tiltwell.loop_field over its 3 x 3 filament grid."""
     array = coil_array(demo())
     reference = float(array.positions[(array.count - 1) // 2])
-    plan = trap_currents(array, reference + PITCH * np.arange(PHASES) / PHASES, GRADIENT)
+    plan = trap_currents(array, reference + PITCH * np.arange(PHASES) / PHASES, gradient)
     total = np.zeros(len(points))
     for z_trap, currents in zip(plan.positions, plan.currents):
         field = np.zeros((len(points), 3))
@@ -100,6 +100,22 @@ def test_the_twin_table_is_the_phase_average_of_the_loop_fields() -> None:
                        [-0.002, 0.001, -0.0011], [0.0, 0.0, 1e-5], [2e-5, 0.0, 0.0]])  # and beside the zero
     assert np.all(np.abs(points) <= [hx, hy, hz])
     reference = mean_magnitude(points)
+    np.testing.assert_allclose(built.trap.source.magnitude(points), reference, rtol=0.0, atol=1e-5 * reference.max())
+
+
+@pytest.mark.parametrize("gradient", [60.0, 300.0])
+def test_the_twin_at_another_gradient_from_the_loop_fields(gradient: float) -> None:
+    """At 60 T/m and at 300 T/m, where the current limit (1000 A) cuts every phase's
+    currents, the twin (tabulated over that gradient's own trap box) equals the loop-field
+    sum of the currents trap_currents plans at that gradient."""
+    array = coil_array(demo())
+    offsets = PITCH * np.arange(PHASES) / PHASES
+    limited = trap_currents(array, float(array.positions[(array.count - 1) // 2]) + offsets, gradient).limited
+    assert np.all(limited) == (gradient == 300.0)
+    scenario = demo().replace("trap", gradient=gradient)
+    built = build(scenario)
+    points = np.array([[0.0, 0.0, 0.6], [0.5, 0.0, -0.9], [0.0, 0.9, 0.3], [-0.4, 0.2, -0.2]]) * trap_box(scenario)
+    reference = mean_magnitude(points, gradient)
     np.testing.assert_allclose(built.trap.source.magnitude(points), reference, rtol=0.0, atol=1e-5 * reference.max())
 
 
