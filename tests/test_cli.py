@@ -49,7 +49,7 @@ def test_species_listing_names_every_entry(capsys: pytest.CaptureFixture[str]) -
     [
         (["species", "Rb78"], "Rb-87"),
         (["quadrupole", "H", "--gradient", "-1", "--max-field", "0.1"], "gradient"),
-        (["quadrupole", "H", "--gradient", "1", "--max-field", "nan"], "max_field"),
+        (["quadrupole", "H", "--gradient", "1", "--max-field", "nan"], "--max-field [T]"),
     ],
     ids=["unknown-species", "negative-gradient", "nan-field"],
 )

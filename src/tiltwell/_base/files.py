@@ -1,4 +1,5 @@
-"""Atomic file writes, the only way tiltwell replaces a file, and its one table layout.
+"""Atomic file writes, the only way tiltwell replaces a file (special files such as FIFOs are
+written into, never replaced), and its one table layout.
 
 :func:`write_table` writes every CSV table tiltwell makes (coil timing, coil waveforms,
 sweeps) in one layout: three ``# `` comment lines (title, units, caution), one header row
@@ -11,7 +12,10 @@ import csv
 import io
 import numbers
 import os
+import re
+import stat
 import tempfile
+import time
 from collections.abc import Iterable, Sequence
 from pathlib import Path
 
@@ -19,29 +23,117 @@ import numpy as np
 
 from .validation import TiltwellError
 
-__all__ = ["TABLE_COMMENT_LINES", "TABLE_UNITS", "atomic_write_bytes", "atomic_write_text", "table_text", "write_table"]
+__all__ = ["STALE_AGE", "TABLE_COMMENT_LINES", "TABLE_UNITS", "WriteError", "atomic_write_bytes", "atomic_write_text",
+           "make_folder", "table_text", "write_table"]
+
+
+#: Age [s] above which a temporary file of our own pattern (``.NAME.<8 random>.tmp``
+#: beside the target, left by a kill between the write and the rename) is removed by the
+#: next write to the same target. A live write of another process finishes within
+#: seconds, so its temporary file is never this old.
+STALE_AGE = 60.0
+
+
+class WriteError(TiltwellError, OSError):
+    """A file could not be written: a TiltwellError whose one line names the user's path
+    and the reason, and still an ``OSError`` for callers that catch those."""
+
+
+def _write_error(name: str, error: OSError) -> WriteError:
+    reason = error.strerror or str(error) or type(error).__name__
+    return WriteError(f"cannot write {name!r}: {reason}")
+
+
+def _remove_stale(target: Path) -> None:
+    """Remove our own temporary files for ``target`` older than :data:`STALE_AGE`."""
+    pattern = re.compile(re.escape(f".{target.name}.") + r"[a-z0-9_]{8}\.tmp")
+    now = time.time()
+    try:
+        entries = [entry for entry in os.scandir(target.parent) if pattern.fullmatch(entry.name)]
+        for entry in entries:
+            if entry.is_file(follow_symlinks=False) and now - entry.stat(follow_symlinks=False).st_mtime > STALE_AGE:
+                os.unlink(entry.path)
+    except OSError:  # cleaning is a courtesy: the write itself reports real trouble
+        pass
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
-    """Write ``data`` to ``path`` through a temporary file in the same folder, flushed to
-    disk, then renamed over the target: a crash or an error leaves the old file whole and
-    no temporary file behind. The new file keeps the mode of the one it replaces, or gets
-    rw-r--r-- (mkstemp alone would make it private)."""
+    """Write ``data`` to ``path`` and return ``Path(path)``.
+
+    A regular file (or a new one) is written through a temporary file in the same folder,
+    flushed to disk, then renamed over the target: a crash or an error leaves the old file
+    whole. The new file keeps the mode of the one it replaces, or gets rw-r--r-- (mkstemp
+    alone would make it private). A symlink is followed: its target is replaced this way
+    and the link stays a link. A character device or a FIFO is opened and written plainly
+    (no temporary file, no rename); a folder or any other special file is refused. A stale
+    temporary file of ours beside the target (older than :data:`STALE_AGE`, so never the
+    live one of a concurrent write) is removed.
+
+    Raises
+    ------
+    TiltwellError
+        An empty or blank name, a folder or special target, a missing folder; an
+        ``OSError`` while writing becomes a :class:`WriteError` naming ``path`` (never the
+        temporary file) and the reason.
+    """
+    name = str(path)
     target = Path(path)
-    if not target.parent.is_dir():
-        raise TiltwellError(f"path must be in an existing folder; got {str(path)!r}")
-    handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    if not name.strip() or name.endswith(os.sep) or (target.name != "" and not target.name.strip()):
+        raise TiltwellError(f"cannot write {name!r}: not a file name (empty, blank or ending in {os.sep})")
     try:
-        os.fchmod(handle, target.stat().st_mode & 0o777 if target.exists() else 0o644)
+        info: os.stat_result | None = os.stat(target)  # follows a symlink to its target
+    except FileNotFoundError:
+        info = None
+    except OSError as error:
+        raise _write_error(name, error) from None
+    if info is not None and not stat.S_ISREG(info.st_mode):
+        if not (stat.S_ISCHR(info.st_mode) or stat.S_ISFIFO(info.st_mode)):
+            kind = "a folder" if stat.S_ISDIR(info.st_mode) else "a special file (not a regular file, FIFO or device)"
+            raise TiltwellError(f"cannot write {name!r}: it is {kind}; give a file name")
+        try:
+            with open(target, "wb") as stream:
+                stream.write(data)
+        except OSError as error:
+            raise _write_error(name, error) from None
+        return target
+    real = Path(os.path.realpath(target))
+    if not real.parent.is_dir():
+        raise TiltwellError(f"path must be in an existing folder; got {name!r}")
+    _remove_stale(real)
+    try:
+        handle, temporary = tempfile.mkstemp(prefix=f".{real.name}.", suffix=".tmp", dir=real.parent)
+    except OSError as error:
+        raise _write_error(name, error) from None
+    try:
+        os.fchmod(handle, info.st_mode & 0o777 if info is not None else 0o644)
         with os.fdopen(handle, "wb") as stream:
             stream.write(data)
             stream.flush()
             os.fsync(stream.fileno())
-        os.replace(temporary, target)
-    except BaseException:
+        os.replace(temporary, real)
+    except BaseException as error:
         Path(temporary).unlink(missing_ok=True)
+        if isinstance(error, OSError):
+            raise _write_error(name, error) from None
         raise
     return target
+
+
+def make_folder(path: str | os.PathLike[str], what: str = "folder") -> Path:
+    """Create the folder ``path`` and its parents if missing and return it; an empty or
+    blank name, a file there, or an ``OSError`` (no permission, a name too long) is one
+    TiltwellError line naming ``what`` and the path."""
+    name = str(path)
+    folder = Path(path)
+    if not name.strip():
+        raise TiltwellError(f"{what} must name a folder; got {name!r}")
+    try:
+        if folder.exists() and not folder.is_dir():
+            raise TiltwellError(f"{what} must be a folder; {name!r} is a file")
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as error:
+        raise WriteError(f"cannot make the {what} {name!r}: {error.strerror or error}") from None
+    return folder
 
 
 def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:

@@ -7,10 +7,12 @@ from __future__ import annotations
 
 import argparse
 import json
+from pathlib import Path
 
 from .._base.validation import TiltwellError
 from ..workflows import scenario as scenario_module
 from ..workflows.calibration import PARAMETERS, Calibration, calibrate, read_trace, write_calibrated
+from .paths import refuse_clashes
 
 __all__ = ["run_calibrate"]
 
@@ -51,7 +53,15 @@ def _print(result: Calibration) -> None:
 
 
 def run_calibrate(arguments: argparse.Namespace) -> None:
-    """Run ``tiltwell calibrate`` for the parsed ``arguments``."""
+    """Run ``tiltwell calibrate`` for the parsed ``arguments``: every output is checked
+    against the inputs (:mod:`.paths`) before the fit, and written after it."""
+    traces = [("--trace", path) for path in arguments.trace]
+    refuse_clashes([*traces, *([] if arguments.force else [("the scenario", arguments.file)])],
+                   [("--write", arguments.write)])
+    refuse_clashes([("the scenario", arguments.file), *traces, ("--write", arguments.write)],
+                   [("--figure", arguments.figure)])
+    if arguments.figure is not None and Path(arguments.figure).suffix.lower() not in (".pdf", ".svg", ".png"):
+        raise TiltwellError(f"--figure must end in .pdf, .svg or .png; got {arguments.figure!r}")
     scenario = scenario_module.load(arguments.file)
     distances = arguments.distance
     if distances is not None and len(distances) != len(arguments.trace):
@@ -59,12 +69,15 @@ def run_calibrate(arguments: argparse.Namespace) -> None:
                             f"for {len(arguments.trace)} trace(s)")
     counts = None if arguments.signal is None else arguments.signal == "counts"
     result = calibrate(scenario, arguments.trace, distances, counts=counts, fix=_fixes(arguments.fix))
-    if arguments.write is not None:
-        write_calibrated(scenario, result, arguments.write, source=arguments.file, force=arguments.force)
-    if arguments.figure is not None:
+    drawing = None
+    if arguments.figure is not None:  # drawn before anything is written
         from ..figures import calibration_fit, save  # matplotlib only when a figure is asked for
 
-        save(calibration_fit(result, [read_trace(path) for path in arguments.trace]), arguments.figure)
+        drawing = calibration_fit(result, [read_trace(path) for path in arguments.trace])
+    if arguments.write is not None:
+        write_calibrated(scenario, result, arguments.write, source=arguments.file, force=arguments.force)
+    if drawing is not None:
+        save(drawing, arguments.figure)
     if arguments.json:
         print(json.dumps(result.to_dict()))
         return

@@ -13,6 +13,7 @@ import numpy as np
 from ..workflows import scenario as scenario_module
 from .._base.validation import TiltwellError
 from ..physics.constants import millikelvin
+from .paths import refuse_clashes, refuse_in_folder
 
 
 def _number(summary: dict[str, Any], key: str) -> float:
@@ -82,6 +83,8 @@ def coils_command(arguments: argparse.Namespace) -> None:
     from ..workflows.coilreport import coil_run, coil_scan, coil_summary, device_box, device_check
 
     path, csv_path, folder = arguments.file, arguments.csv, arguments.figures
+    refuse_clashes([("the scenario", path)], [("--csv", csv_path)])
+    refuse_in_folder("--figures", folder, (), {".png"}, [("the scenario", path), ("--csv", csv_path)])
     scenario = scenario_module.load(path)
     if csv_path is not None and not Path(csv_path).parent.is_dir():
         raise TiltwellError(f"--csv must name a file in an existing folder; got {csv_path!r}")

@@ -14,8 +14,11 @@ the beam through the row and through its rigid twin, and draws it.
 ``tiltwell calibrate FILE --trace CSV ...`` fits measured free-beam traces (:mod:`.calibrate`);
 ``tiltwell search FILE --vary KEY=LOW:HIGH[:N] ... --out DIR`` runs a design search or, with
 ``--optimise FIGURE``, finds the best design under the limits (:mod:`.search`).
-Errors print one line and exit with status 2, never a traceback; output piped into a
-reader that stops early (``tiltwell keys | head -1``) ends quietly with status 0.
+Errors print one line and exit with status 2, never a traceback; Ctrl-C prints one line
+and exits with status 130; output piped into a reader that stops early (``tiltwell keys |
+head -1``) ends quietly with status 0. An output that is an input (or another output) is
+refused before anything is computed (:mod:`.paths`); outputs are written after the
+computation succeeded.
 ``tiltwell --version`` prints the version; the grammar is :mod:`.parser`.
 """
 
@@ -24,6 +27,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import signal
 import sys
 from collections.abc import Callable, Sequence
 from concurrent.futures import ProcessPoolExecutor
@@ -40,16 +44,20 @@ from ..wells.acceptance import trap_acceptance
 from ..physics.hardware import ELECTRICAL_CAUTION
 from ..physics.constants import ATOMIC_MASS, BOHR_MAGNETON, millikelvin
 from ..physics.fields import IdealQuadrupole
-from ..workflows.report import build, summarise, summarise_parts, timing
+from ..workflows.report import summarise, summarise_parts, timing
 from ..physics.species import catalogue, species
 from ..workflows.sweep import sweep, sweep_csv
 from ..workflows.demo import DEMO_SCENARIO
 from ..wells.traps import Trap
 from .calibrate import run_calibrate
-from .parser import build_parser
+from .parser import MAX_SWEEP_POINTS, build_parser
+from .paths import refuse_clashes, refuse_in_folder
 
 
-__all__ = ["main", "quadrupole_summary"]
+__all__ = ["INTERRUPTED", "main", "quadrupole_summary"]
+
+#: Exit status after Ctrl-C (128 + SIGINT, as shells report it; the same as :mod:`.search`).
+INTERRUPTED = 130
 
 
 def quadrupole_summary(name: str, gradient: float, max_field: float, deceleration: float) -> dict[str, object]:
@@ -60,9 +68,10 @@ def quadrupole_summary(name: str, gradient: float, max_field: float, deceleratio
     twice the extent of the truncation surface in each direction.
     """
     particle = species(name)
-    gradient = as_scalar(gradient, "gradient", "T/m", low=0.0, low_open=True)
-    max_field = as_scalar(max_field, "max_field", "T", low=0.0, low_open=True)
-    deceleration = as_scalar(deceleration, "deceleration", "m/s^2")
+    # the ranges of the scenario keys that hold the same numbers ([trap] gradient, max_field)
+    gradient = scenario_module.key_spec("trap.gradient").convert("--gradient", gradient)
+    max_field = scenario_module.key_spec("trap.max_field").convert("--max-field", max_field)
+    deceleration = as_scalar(deceleration, "--deceleration", "m/s^2", low=-1e9, high=1e9)
     edge = max_field / gradient
     box = ((-4 * edge, 4 * edge), (-4 * edge, 4 * edge), (-2 * edge, 2 * edge))
     trap = Trap(IdealQuadrupole(gradient, max_field), particle, box)
@@ -212,25 +221,30 @@ def _print_budget(summary: dict[str, Any]) -> None:
 
 
 def _run(path: str, as_json: bool, progress: bool, timing_path: str | None, trace_path: str | None = None) -> None:
+    refuse_clashes([("the scenario", path)], [("--timing", timing_path), ("--trace", trace_path)])
     scenario = scenario_module.load(path)
     if trace_path is not None and scenario.detector is None:
         raise TiltwellError("--trace needs a [detector] section in the scenario: distance [m] from the nozzle, "
                             "radius [m] (and efficiency, time_bin [s])")
-    if timing_path is not None:
-        table = timing(scenario, build(scenario).schedule)
-        if table is None:
-            raise TiltwellError("--timing needs [deceleration] pitch [m] and peak_current [A] in the scenario")
-        table.to_csv(timing_path)
+    if timing_path is not None and (scenario.deceleration.pitch is None or scenario.deceleration.peak_current is None):
+        raise TiltwellError("--timing needs [deceleration] pitch [m] and peak_current [A] in the scenario")
     summary, built, estimates, budget = summarise_parts(scenario, progress=progress)
-    if as_json:
-        print(json.dumps(summary))
-    else:
-        _print_run(summary)
+    traces = None
     if trace_path is not None:  # from the same estimates and budget as the summary
         from ..workflows.traces import predicted_traces
 
         traces = predicted_traces(scenario, estimates, built=built, budget=budget)
+    if timing_path is not None:  # written only now that the whole computation succeeded
+        table = timing(scenario, built.schedule)
+        assert table is not None  # pitch and peak_current were checked above
+        table.to_csv(timing_path)
+    if traces is not None and trace_path is not None:
         traces.to_csv(trace_path)
+    if as_json:
+        print(json.dumps(summary))
+    else:
+        _print_run(summary)
+    if traces is not None:
         if not as_json:
             packet = "none" if traces.packet_detected is None else f"{traces.packet_detected:.4g}"
             print(f"wrote {trace_path}: detected per shot, free beam {traces.free_detected:.4g}, decelerated packet "
@@ -238,26 +252,56 @@ def _run(path: str, as_json: bool, progress: bool, timing_path: str | None, trac
 
 
 def _sweep(arguments: argparse.Namespace) -> None:
+    if not 1 <= arguments.points <= MAX_SWEEP_POINTS:
+        raise TiltwellError(f"--points must be in [1, {MAX_SWEEP_POINTS}]; got {arguments.points}")
+    cores = os.cpu_count() or 1
+    if not 1 <= arguments.workers <= cores:
+        raise TiltwellError(f"--workers must be in [1, {cores}] (the cores of this machine); got {arguments.workers}")
+    refuse_clashes([("the scenario", arguments.file)], [("--out", arguments.out)])
     scenario = scenario_module.load(arguments.file)
     values = np.linspace(arguments.start, arguments.stop, arguments.points)
-    executor = ProcessPoolExecutor(arguments.workers) if arguments.workers > 1 else None
+    executor = ProcessPoolExecutor(arguments.workers, initializer=_ignore_interrupts) if arguments.workers > 1 else None
     try:
         keyword = "lengths" if arguments.lengths else "decelerations"
         rows = sweep(scenario, **{keyword: values}, executor=executor, progress=not arguments.quiet)
+    except KeyboardInterrupt:
+        if executor is not None:
+            _stop(executor)
+        raise
     finally:
         if executor is not None:
-            executor.shutdown()
+            executor.shutdown(cancel_futures=True)
     text = sweep_csv(rows, arguments.out)
     if arguments.out is None:
         print(text, end="")
 
 
+def _ignore_interrupts() -> None:
+    """In a worker process: leave Ctrl-C to the parent, which stops the workers (:func:`_stop`)."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+def _stop(executor: ProcessPoolExecutor) -> None:
+    """Cancel the points not started and end the worker processes now, without waiting for
+    the running points (Python 3.14's ``terminate_workers``; before it, the executor's
+    ``_processes`` map, the only handle on them the standard library gives)."""
+    executor.shutdown(wait=False, cancel_futures=True)
+    terminate = getattr(executor, "terminate_workers", None)
+    if callable(terminate):
+        terminate()
+        return
+    for process in list((getattr(executor, "_processes", None) or {}).values()):
+        process.terminate()
+
+
 def _demo(out: str, as_json: bool) -> None:
     folder = Path(out)
-    folder.mkdir(parents=True, exist_ok=True)
+    if folder.exists() and not folder.is_dir():
+        raise TiltwellError(f"--out must be a folder; {out!r} is a file")
     demo = scenario_module.loads(DEMO_SCENARIO.read_text(encoding="utf-8"))
+    summary = summarise(demo)  # computed first: a failed or interrupted run writes nothing
+    folder.mkdir(parents=True, exist_ok=True)
     path = scenario_module.save(demo, folder / "demo.toml")
-    summary = summarise(demo)
     atomic_write_text(folder / "demo-summary.json", json.dumps(summary, indent=2) + "\n")
     if as_json:
         print(json.dumps(summary))
@@ -269,8 +313,10 @@ def _demo(out: str, as_json: bool) -> None:
 def _figures(arguments: argparse.Namespace) -> None:
     from .drawings import write_scenario_figures  # matplotlib is loaded only for this command
 
-    scenario = scenario_module.load(arguments.file)
     formats = tuple(part.strip() for part in arguments.formats.split(","))
+    refuse_in_folder("--out", arguments.out, (), {f".{kind.lower()}" for kind in formats},
+                     [("the scenario", arguments.file)])
+    scenario = scenario_module.load(arguments.file)
     for path in write_scenario_figures(scenario, arguments.out, formats=formats, width=arguments.width,
                                        height=arguments.height, dpi=arguments.dpi, draw_caution=arguments.draw_caution):
         print(f"wrote {path}")
@@ -327,8 +373,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         _silence_stdout()
         return 0
     except OSError as error:
-        print(f"tiltwell: error: {error.filename or ''}: {error.strerror}", file=sys.stderr)
+        reason = error.strerror or str(error) or type(error).__name__
+        where = f"{error.filename}: " if error.filename not in (None, "") else ""
+        print(f"tiltwell: error: {where}{reason}", file=sys.stderr)
         return 2
+    except KeyboardInterrupt:  # Ctrl-C: one line, no traceback (tiltwell search says what it kept)
+        print("tiltwell: interrupted (Ctrl-C)", file=sys.stderr)
+        return INTERRUPTED
     return 0
 
 

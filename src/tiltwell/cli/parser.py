@@ -7,7 +7,10 @@ import argparse
 
 from .._base.version import VERSION
 
-__all__ = ["DESCRIPTION", "EPILOG", "build_parser"]
+__all__ = ["DESCRIPTION", "EPILOG", "MAX_SWEEP_POINTS", "build_parser"]
+
+#: Most points ``tiltwell sweep --points`` accepts (each point is a whole scenario run).
+MAX_SWEEP_POINTS = 100_000
 
 #: What ``tiltwell --help`` says the tool is for.
 DESCRIPTION = """\
@@ -52,10 +55,11 @@ def build_parser() -> argparse.ArgumentParser:
     sweeping.add_argument("file", help="scenario file (TOML) whose deceleration (or length) is varied")
     sweeping.add_argument("--start", type=float, required=True, help="first deceleration [m/s^2] (or length [m])")
     sweeping.add_argument("--stop", type=float, required=True, help="last deceleration [m/s^2] (or length [m])")
-    sweeping.add_argument("--points", type=int, default=11, help="number of points, default 11")
+    sweeping.add_argument("--points", type=int, default=11,
+                          help=f"number of points, 1 to {MAX_SWEEP_POINTS}, default 11")
     sweeping.add_argument("--lengths", action="store_true", help="sweep the length [m] instead")
     sweeping.add_argument("--out", help="CSV file to write (default: standard output)")
-    sweeping.add_argument("--workers", type=int, default=1, help="processes to use, default 1")
+    sweeping.add_argument("--workers", type=int, default=1, help="processes to use, at most the cores; default 1")
     sweeping.add_argument("--quiet", action="store_true", help="no progress bar")
     looking = commands.add_parser("search", help="design search over several keys, or the best design under limits",
                                   description="Vary scenario keys together over a grid, a list or a space-filling "

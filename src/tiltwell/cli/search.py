@@ -27,11 +27,14 @@ from ..physics.hardware import ELECTRICAL_CAUTION
 from ..workflows import scenario as scenario_module
 from ..workflows.optimise import front_of, optimise
 from ..workflows.search import SearchResult, parse_vary, search
+from .paths import refuse_in_folder
 
-__all__ = ["INTERRUPTED", "search_command"]
+__all__ = ["INTERRUPTED", "WRITTEN", "search_command"]
 
 #: Exit status after Ctrl-C (128 + SIGINT), as shells report it.
 INTERRUPTED = 130
+#: The files a search or an optimisation writes into ``--out`` by name (and figures, ``*.png``).
+WRITTEN = ("points.jsonl", "search.csv", "search.nc", "optimum.json", "optimum.toml")
 
 
 def _workers(count: int) -> int:
@@ -80,10 +83,11 @@ def _optimise(arguments: argparse.Namespace, scenario: scenario_module.Scenario,
 
 def search_command(arguments: argparse.Namespace) -> None:
     """Run ``tiltwell search`` as parsed by :func:`tiltwell.cli.parser.build_parser`."""
-    scenario = scenario_module.load(arguments.file)
     folder = Path(arguments.out)
     if folder.exists() and not folder.is_dir():
         raise TiltwellError(f"--out must be a folder; {str(folder)!r} is a file")
+    refuse_in_folder("--out", folder, WRITTEN, {".png"}, [("the scenario", arguments.file)])
+    scenario = scenario_module.load(arguments.file)
     folder.mkdir(parents=True, exist_ok=True)
     if arguments.optimise is not None:
         _optimise(arguments, scenario, folder)

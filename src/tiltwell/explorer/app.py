@@ -49,7 +49,7 @@ from .tasks import Tasks
 from .tradeoff import TradeoffCurve
 from .widgets import (check_values, control_values, fit_deceleration, make_actions, make_controls, make_layout,
                       make_readouts, read_settings, sync_log)
-from .._base.files import atomic_write_text
+from .._base.files import atomic_write_text, make_folder
 from .._base.validation import TiltwellError
 from ..dynamics.capture import CaptureEstimates
 from ..workflows.demo import DEMO_SCENARIO
@@ -389,6 +389,8 @@ class Explorer:
 
     def save_scenario(self, path: str | os.PathLike[str]) -> Path:
         """Write :meth:`scenario` to ``path`` (TOML, atomically, :func:`tiltwell.workflows.scenario.save`)."""
+        if not str(path).strip():  # Path("") would be the current folder
+            raise TiltwellError(f"scenario file must be named; got {str(path)!r}")
         return save(self.scenario(), path)
 
     def save_figures(self, out: str | os.PathLike[str]) -> Future[list[Path] | None]:
@@ -396,7 +398,8 @@ class Explorer:
         the background: :func:`tiltwell.workflows.figure_data.scenario_figure_data` runs
         the whole scenario (trajectories included), ``tiltwell.figures.scenario_figures``
         draws and writes. Returns the future of the list of paths (None when it failed,
-        or at once when the figures module is missing; :attr:`status` says so)."""
+        or at once when the figures module is missing; :attr:`status` says so). A bad folder
+        name (empty, a file, not creatable) raises TiltwellError at once."""
         try:
             make = importlib.import_module("tiltwell.figures").scenario_figures
         except (ImportError, AttributeError):
@@ -404,6 +407,7 @@ class Explorer:
             return Tasks.finished(None)
         from ..workflows.figure_data import scenario_figure_data
 
+        make_folder(out, "figures folder")  # a bad name is a TiltwellError (a status line) at once
         scenario = self.scenario()
 
         def apply(paths: object) -> None:
