@@ -132,10 +132,10 @@ def _with_coils(**changes: object) -> dict[str, dict[str, object]]:
         ({"fill_factor": 1.5}, ["[coils] fill_factor", "(0, 1]", "1.5"]),
         ({"max_current": -400.0}, ["[coils] max_current", "[A]", "(0, 1e+06]"]),
         ({"active": 3}, ["[coils] active", "even", "3"]),
-        ({"active": 0}, ["[coils] active", "[2, 1000]"]),
+        ({"active": 0}, ["[coils] active", "[2, 64]"]),
         ({"gradient": 0.0}, ["[coils] gradient", "[T/m]", "(0, 100000]"]),
         ({"plan_step": "fast"}, ["[coils] plan_step", "[s]", "fast"]),
-        ({"phases": 0}, ["[coils] phases", "[1, 1000]"]),
+        ({"phases": 0}, ["[coils] phases", "[1, 64]"]),
         ({"turn": 200, "turns": None}, ["unknown key", "[coils] turn", "did you mean 'turns'"]),
         ({"radius": None}, ["[coils] radius is required"]),
         ({"height": 0.009}, ["[coils] height [m]", "[deceleration] pitch = 0.008", "0.009"]),
@@ -225,7 +225,7 @@ def test_listing_shows_kind_range_and_required() -> None:
     text = sc.describe()
     coils = text.split("[coils]")[1]
     assert "  turns in [1, 100000] (required): turns per coil" in coils
-    assert "  active in [2, 1000], even (default 4): coils carrying current at once" in coils
+    assert "  active in [2, 64], even (default 4): coils carrying current at once" in coils
     assert "  kind one of quadrupole, coils (required): the trap" in text
     assert "  seed in [0, 9223372036854775807] (default 0): random seed" in text
 

@@ -19,6 +19,10 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 __all__ = [
+    "MAX_GRADIENT",
+    "MAX_LENGTH",
+    "MAX_MASS",
+    "MAX_SAMPLES",
     "read_only_copy",
     "Interval",
     "TiltwellError",
@@ -41,9 +45,32 @@ class TiltwellError(ValueError):
     """Bad input to a tiltwell function. A ``ValueError``, so callers may catch either."""
 
 
+#: Ceilings of this tool's inputs where physics sets none (not physical limits: far beyond any
+#: laboratory device, so that a mistyped exponent is refused before it overflows a square or a
+#: cube): a length [m] (1e9: the dipole limit of two loops is still checked at 1e6 m), a
+#: particle mass [kg] (~6e6 u), a field gradient [T/m], samples of a 1-D cut.
+MAX_LENGTH = 1e9
+MAX_MASS = 1e-20
+MAX_GRADIENT = 1e6
+MAX_SAMPLES = 10**6
+
+
 def _describe(value: Any) -> str:
+    """``repr(value)`` cut to 60 characters (a long string or list is cut before its repr
+    is made, so a 50 MB value costs nothing to describe)."""
+    if isinstance(value, (str, bytes)) and len(value) > 60:
+        value = value[:60]
+    elif isinstance(value, (list, tuple)) and len(value) > 20:
+        value = value[:20]
     text = repr(value)
     return text if len(text) <= 60 else text[:57] + "..."
+
+
+def _not_a_number(value: Any) -> bool:
+    """Whether ``value`` must never pass as a real number: a bool (numpy's too), or a
+    complex number (``float()`` of numpy's complex types silently drops the imaginary part)."""
+    return isinstance(value, (bool, np.bool_, complex, np.complexfloating)) or (
+        isinstance(value, np.ndarray) and value.dtype.kind in "bc")
 
 
 def _label(name: str, unit: str) -> str:
@@ -113,10 +140,11 @@ def as_scalar(
     interval notation (:class:`Interval`) with the unit, e.g. ``mass [kg] must be finite
     and in (0, inf); got -1.0``; an empty ``unit`` prints the name alone. ``strict``
     accepts real numbers only (int, float, numpy reals), not strings or other objects that
-    ``float()`` would convert, as for values read from a file. Bools are never numbers.
+    ``float()`` would convert, as for values read from a file. Bools, complex numbers and
+    text are never numbers.
     """
     label = _label(name, unit)
-    if isinstance(value, bool) or (strict and not isinstance(value, numbers.Real)):
+    if _not_a_number(value) or isinstance(value, (str, bytes)) or (strict and not isinstance(value, numbers.Real)):
         raise TiltwellError(f"{label} must be a real number; got {_describe(value)}")
     try:
         number = float(value)
@@ -190,7 +218,7 @@ def as_integer(value: Any, name: str, low: int, high: int | None = None, *, even
     if isinstance(value, bool) or not isinstance(value, numbers.Integral) or not (
         low <= int(value) and (high is None or int(value) <= high) and not (even and int(value) % 2)
     ):
-        raise TiltwellError(f"{name} must be {kind} {allowed}; got {value!r}")
+        raise TiltwellError(f"{name} must be {kind} {allowed}; got {_describe(value)}")
     return int(value)
 
 
@@ -210,19 +238,29 @@ def as_text(value: Any, name: str) -> str:
 
 
 def as_choice(value: Any, name: str, choices: Sequence[str]) -> str:
-    """Return ``value`` if it is exactly one of ``choices``, or raise naming them and the
-    close match, if any."""
+    """Return the one of ``choices`` that ``value`` names (case and surrounding spaces aside,
+    as names are everywhere in tiltwell), or raise naming them and the close match, if any."""
     if isinstance(value, str) and value in choices:
         return value
-    close = difflib.get_close_matches(value, list(choices), n=1) if isinstance(value, str) else []
+    if isinstance(value, str):
+        same = [choice for choice in choices if choice.lower() == value.strip().lower()]
+        if same:
+            return same[0]
+    close = difflib.get_close_matches(value, list(choices), n=1) if isinstance(value, str) and len(value) < 100 else []
     hint = f"; did you mean '{close[0]}'?" if close else ""
     raise TiltwellError(f"{name} must be one of {', '.join(choices)}; got {_describe(value)}{hint}")
 
 
 def as_finite_array(value: ArrayLike, name: str, unit: str, *, ndim: int | None = None) -> NDArray[np.float64]:
-    """Return ``value`` as a float64 array with no NaN or infinity, or raise."""
+    """Return ``value`` as a float64 array with no NaN or infinity, or raise; booleans,
+    complex numbers and text are not real numbers here."""
+    if _not_a_number(value) or (isinstance(value, (list, tuple)) and any(_not_a_number(v) for v in value)):
+        raise TiltwellError(f"{name} [{unit}] must be an array of real numbers; got {_describe(value)}")
     try:
-        array = np.asarray(value, dtype=np.float64)
+        raw = np.asarray(value)
+        if raw.dtype.kind not in "iuf" and raw.dtype != object:
+            raise TypeError
+        array = np.asarray(raw, dtype=np.float64)
     except (TypeError, ValueError):
         raise TiltwellError(f"{name} [{unit}] must be an array of real numbers; got {_describe(value)}") from None
     if ndim is not None and array.ndim != ndim:

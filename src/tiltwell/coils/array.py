@@ -26,13 +26,15 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .._base.files import write_table
-from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
+from .._base.validation import MAX_GRADIENT, TiltwellError, as_finite_array, as_integer, as_scalar
 from ..physics.constants import VACUUM_PERMEABILITY
 from ..physics.fields import Coil, CoilSet
 from ..physics.hardware import ELECTRICAL_CAUTION
 from .schedule import Schedule
 
 __all__ = [
+    "MAX_ACTIVE",
+    "MAX_PHASES",
     "CoilArray",
     "CurrentPlan",
     "check_coil_array",
@@ -45,6 +47,13 @@ __all__ = [
 ]
 
 FloatArray = NDArray[np.float64]
+
+
+#: Most coils carrying current at once, and most trap positions across one pitch: each
+#: phase is a field table and an acceptance of the row (about 0.05 s on the demo's six
+#: active coils, measured), so 64 x 64 is already minutes; the ranges keep a request runnable.
+MAX_ACTIVE = 64
+MAX_PHASES = 64
 
 
 @dataclass(frozen=True)
@@ -89,9 +98,9 @@ class CoilArray:
 
     def __post_init__(self) -> None:
         count = as_integer(self.count, "count", 2)
-        active = as_integer(self.active, "active", 2, count)
+        active = as_integer(self.active, "active", 2, min(count, MAX_ACTIVE))
         if active % 2:
-            raise TiltwellError(f"active must be an even integer in [2, {count}]; got {active!r}")
+            raise TiltwellError(f"active must be an even integer in [2, {min(count, MAX_ACTIVE)}]; got {active!r}")
         limit = self.max_current
         if limit != math.inf:
             limit = as_scalar(limit, "max_current", "A", low=0.0, low_open=True)
@@ -160,9 +169,7 @@ def row_layout(length: float, pitch: float, active: int, handover: float) -> tup
     """
     spacing = as_scalar(pitch, "pitch", "m", low=0.0, low_open=True)
     distance = as_scalar(length, "length", "m", low=0.0, low_open=True)
-    count = as_integer(active, "active", 2)
-    if count % 2:
-        raise TiltwellError(f"active must be an even integer >= 2; got {count!r}")
+    count = as_integer(active, "active", 2, MAX_ACTIVE, even=True)
     weighted = as_scalar(handover, "handover", "pitches", low=0.0) > 0.0 and count > 2
     steps = distance / spacing
     whole = math.floor(steps * (1.0 + 1e-12))
@@ -394,7 +401,7 @@ def trap_currents(array: CoilArray, z_trap: ArrayLike, gradient: float) -> Curre
     check_coil_array(array)
     z = as_finite_array(z_trap, "z_trap", "m", ndim=1)
     check_on_row(array, z, "z_trap")
-    target = as_scalar(gradient, "gradient", "T/m", low=0.0, low_open=True)
+    target = as_scalar(gradient, "gradient", "T/m", low=0.0, high=MAX_GRADIENT, low_open=True)
     window, local, achieved, limited = local_currents(array, z, target)
     currents = np.zeros((z.size, array.count))
     np.put_along_axis(currents, window, local, axis=1)

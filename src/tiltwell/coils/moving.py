@@ -13,6 +13,7 @@ from scipy import optimize
 from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
 from ..wells.acceptance import trap_acceptance
 from .array import (
+    MAX_PHASES,
     CoilArray,
     check_coil_array,
     on_axis_response,
@@ -161,7 +162,7 @@ def moving_trap_phases(
         raise TiltwellError(f"array.count must be >= active + 1 = {array.active + 1} for a phase scan; got {array.count}")
     if not isinstance(species, Species):
         raise TiltwellError(f"species must be a Species; got {type(species).__name__}")
-    count = as_integer(phases, "phases", 1)
+    count = as_integer(phases, "phases", 1, MAX_PHASES)
     halves = as_finite_array(box_half_widths, "box_half_widths", "m", ndim=1)
     bore = array.radius - 0.5 * array.width
     if halves.shape != (3,) or np.any(halves <= 0.0) or np.any(halves[:2] >= bore):

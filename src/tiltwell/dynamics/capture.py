@@ -23,7 +23,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .._base.display import html_table
-from .._base.validation import TiltwellError, as_integer, as_scalar
+from .._base.validation import TiltwellError, as_boolean, as_integer, as_scalar
 from ..wells.acceptance import TrapAcceptance, trap_acceptance
 from ..physics.beam import Beam
 from ..physics.fields import IdealQuadrupole
@@ -104,6 +104,27 @@ def default_time_step(acceptance: TrapAcceptance, mass: float) -> float:
     return (well.z_front - well.z_back) / speed / STEPS_PER_CROSSING
 
 
+#: The largest time step allowed, as a share of the well's crossing time: ten steps per
+#: crossing at least (the default takes STEPS_PER_CROSSING). Coarser steps lose particles to
+#: the integrator, not to the trap (measured on the demo: kept 0.174 at the default step,
+#: 0.046 at a fifth of a crossing, 0 at two crossings).
+MAX_STEP_SHARE = 0.1
+
+
+def checked_step(time_step: float, acceptance: TrapAcceptance, mass: float) -> float:
+    """``time_step`` [s] if it is at most :data:`MAX_STEP_SHARE` of the longitudinal well's
+    crossing time, else a TiltwellError naming the largest allowed step."""
+    well = acceptance.longitudinal
+    if not well.bound:
+        return time_step
+    largest = default_time_step(acceptance, mass) * STEPS_PER_CROSSING * MAX_STEP_SHARE
+    if time_step > largest:
+        raise TiltwellError(f"time_step [s] must be in (0, {largest:.3g}] here: at most {MAX_STEP_SHARE:g} of the "
+                            f"well's crossing time ({largest / MAX_STEP_SHARE:.3g} s), or the integrator, not the "
+                            f"trap, loses particles; got {time_step:g}")
+    return time_step
+
+
 def capture_estimates(
     trap: Trap,
     deceleration: float,
@@ -153,6 +174,11 @@ def capture_estimates(
     mismatch = as_scalar(mismatch, "mismatch", "m/s")
     switch_on_time = as_scalar(switch_on_time, "switch_on_time", "s", low=0.0, high=duration)
     particles = as_integer(particles, "particles", 1)
+    if not isinstance(beam, Beam):
+        raise TiltwellError(f"beam must be a tiltwell.Beam; got {type(beam).__name__}")
+    track_particles = as_boolean(track_particles, "track_particles")
+    if time_step is not None:
+        time_step = as_scalar(time_step, "time_step", "s", low=0.0, low_open=True)
     acceptance = trap_acceptance(trap, a, samples=samples, rtol=rtol)
     overlap = plane_product_fraction(acceptance.longitudinal, acceptance.transverse, beam, mismatch)
     sample = beam.sample(int(particles), seed=seed)
@@ -165,7 +191,8 @@ def capture_estimates(
     if not track_particles:
         return CaptureEstimates(overlap, energetic, energetic_error, math.nan, math.nan, int(particles), acceptance,
                                 None, sample)
-    step = default_time_step(acceptance, trap.mass) if time_step is None else time_step
+    step = default_time_step(acceptance, trap.mass) if time_step is None else checked_step(time_step, acceptance,
+                                                                                           trap.mass)
     step = min(step, duration)
     # Coil fields are costly to differentiate at every step: interpolate a precomputed map.
     field_map = None if isinstance(trap.source, IdealQuadrupole) else FieldMap.from_trap(trap)

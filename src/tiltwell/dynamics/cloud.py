@@ -25,7 +25,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .._base.display import html_table
-from .._base.validation import TiltwellError, as_finite_array, as_scalar, read_only_copy
+from .._base.validation import MAX_MASS, TiltwellError, as_finite_array, as_scalar, read_only_copy
 from ..physics.constants import BOLTZMANN, PLANCK
 
 __all__ = ["CloudStats", "cloud_stats"]
@@ -128,7 +128,7 @@ def cloud_stats(particles: ArrayLike, mass: float, *, scale: float = 1.0,
         raise TiltwellError(f"particles [m, m/s] must have shape (N, 6); got shape {points.shape}")
     if points.shape[0] < MIN_PARTICLES:
         raise TiltwellError(f"particles [m, m/s] needs at least {MIN_PARTICLES} rows; got {points.shape[0]}")
-    m = as_scalar(mass, "mass", "kg", low=0.0, low_open=True)
+    m = as_scalar(mass, "mass", "kg", low=0.0, high=MAX_MASS, low_open=True)
     weight = as_scalar(scale, "scale", "1", low=0.0, low_open=True)
     samples = points.shape[0]
     w = np.ones(samples) if weights is None else as_finite_array(weights, "weights", "1", ndim=1)

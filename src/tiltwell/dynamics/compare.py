@@ -23,7 +23,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .._base.display import html_table
 from .._base.validation import TiltwellError, as_integer, as_points, as_scalar
-from ..coils.array import CoilArray, CurrentPlan, check_coil_array, trap_currents
+from ..coils.array import MAX_PHASES, CoilArray, CurrentPlan, check_coil_array, trap_currents
 from .device import UniformMotion, check_device_run, track_device
 from .fieldmap import FieldMap
 from ..physics.fields import Coil, CoilSet, FieldSource
@@ -108,7 +108,7 @@ class PhaseAveragedField:
                 f"got {self.array.count}"
             )
         object.__setattr__(self, "gradient", as_scalar(self.gradient, "gradient", "T/m", low=0.0, low_open=True))
-        object.__setattr__(self, "phases", as_integer(self.phases, "phases", 1))
+        object.__setattr__(self, "phases", as_integer(self.phases, "phases", 1, MAX_PHASES))
         if not isinstance(self.average, str) or self.average not in AVERAGES:
             raise TiltwellError(f"average must be one of {', '.join(map(repr, AVERAGES))}; got {self.average!r}")
 

@@ -27,7 +27,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .._base.validation import TiltwellError, as_finite_array, as_scalar
+from .._base.validation import MAX_GRADIENT, MAX_MASS, TiltwellError, as_finite_array, as_scalar
 from ..physics.constants import ATOMIC_MASS, BOLTZMANN, PLANCK
 
 __all__ = [
@@ -85,9 +85,9 @@ def majorana_rate(
     >>> f"{rate:.3g}"  # [1/s] at 1 T/m (100 G/cm) and 100 uK
     '0.00132'
     """
-    m = as_scalar(mass, "mass", "kg", low=0.0, low_open=True)
+    m = as_scalar(mass, "mass", "kg", low=0.0, high=MAX_MASS, low_open=True)
     mu = as_scalar(moment, "moment", "J/T", low=0.0, low_open=True)
-    b = as_scalar(gradient, "gradient", "T/m", low=0.0, low_open=True)
+    b = as_scalar(gradient, "gradient", "T/m", low=0.0, high=MAX_GRADIENT, low_open=True)
     t = as_scalar(temperature, "temperature", "K", low=0.0, low_open=True)
     c = as_scalar(chi, "chi", "1", low=0.0, low_open=True)
     return c * HBAR / m * (mu * b / (BOLTZMANN * t)) ** 2

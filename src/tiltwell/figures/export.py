@@ -13,6 +13,7 @@ from typing import Any
 from matplotlib.figure import Figure
 
 from .._base.files import atomic_write_bytes
+from .._base.resources import BYTES_PER_PIXEL, check_memory
 from .._base.validation import TiltwellError, as_scalar
 from .style import style_context
 
@@ -30,6 +31,8 @@ _FORMATS: dict[str, tuple[str, dict[str, Any]]] = {
 #: Largest figure side [in] and resolution [1/in] accepted.
 MAX_SIZE = 100.0
 MAX_DPI = 2400.0
+#: Most pixels along one side of a rendered figure (matplotlib's Agg refuses 2**16).
+MAX_PIXELS = 2**16 - 1
 
 
 def save(figure: Figure, path: str | os.PathLike[str], *, width: float | None = None, height: float | None = None,
@@ -66,6 +69,11 @@ def save(figure: Figure, path: str | os.PathLike[str], *, width: float | None = 
         old[1] if height is None else as_scalar(height, "height", "in", low=0.0, high=MAX_SIZE, low_open=True),
     )
     dots = as_scalar(dpi, "dpi", "1/in", low=0.0, high=MAX_DPI, low_open=True)
+    wide, high = int(size[0] * dots), int(size[1] * dots)
+    if max(wide, high) > MAX_PIXELS:
+        raise TiltwellError(f"a figure of {wide} x {high} pixels is refused: at most {MAX_PIXELS} pixels a side "
+                            f"(matplotlib's own limit); width x dpi and height x dpi are {wide} and {high}")
+    check_memory(wide * high * BYTES_PER_PIXEL, f"a figure of {wide} x {high} pixels", "lower the dpi or the size")
     buffer = io.BytesIO()
     try:
         figure.set_size_inches(size)

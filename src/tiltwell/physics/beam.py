@@ -25,6 +25,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .._base.display import html_table
+from .._base.resources import BYTES_PER_PARTICLE, check_memory
 from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
 
 __all__ = ["Beam", "PhasePlane"]
@@ -195,8 +196,13 @@ class Beam:
 
     def sample(self, n: int, seed: int | None = 0) -> Array:
         """``n`` particles as an (n, 6) array (x, y, z, vx, vy, vz) [m, m/s] relative to the
-        synchronous particle; the same ``seed`` gives the same particles."""
-        parts = list(self.chunks(n, seed=seed))
+        synchronous particle; the same ``seed`` gives the same particles. A count that
+        cannot be held and tracked in this machine's free memory is refused before any
+        is drawn (:func:`tiltwell._base.resources.check_memory`)."""
+        count = as_integer(n, "n", 0)
+        check_memory(count * BYTES_PER_PARTICLE, f"{count} particles (sampled and tracked)",
+                     "ask for fewer particles (the statistical error falls only as 1/sqrt(N))")
+        parts = list(self.chunks(count, seed=seed))
         return np.concatenate(parts) if parts else np.empty((0, 6))
 
     def drift(self, time: float) -> Beam:

@@ -173,9 +173,9 @@ def hardware_estimate(
     of the two, so the inductive voltage estimate errs on the safe side. The central field
     is mu0 N I / (2 R) (Biot-Savart).
     """
-    current = as_scalar(peak_current, "peak_current", "A", low=0.0, low_open=True)
+    current = as_scalar(peak_current, "peak_current", "A", low=0.0, high=1e7, low_open=True)
     duration = as_scalar(pulse_duration, "pulse_duration", "s", low=0.0, low_open=True)
-    area = as_scalar(wire_area, "wire_area", "m^2", low=0.0, low_open=True)
+    area = as_scalar(wire_area, "wire_area", "m^2", low=0.0, high=1.0, low_open=True)
     as_integer(turns, "turns", 1)
     radius = as_scalar(coil_radius, "coil_radius", "m", low=0.0, low_open=True)
     rise = as_scalar(rise_time, "rise_time", "s", low=0.0, high=0.5 * duration, low_open=True)

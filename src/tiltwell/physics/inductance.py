@@ -22,7 +22,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.special import ellipe, ellipkm1
 
-from .._base.validation import TiltwellError, as_finite_array, as_integer, as_scalar
+from .._base.validation import MAX_LENGTH, TiltwellError, as_finite_array, as_integer, as_scalar
 from .constants import VACUUM_PERMEABILITY
 from .fields import Coil
 from .hardware import ring_inductance
@@ -105,9 +105,9 @@ def loop_mutual_gradient(radius_a: ArrayLike, radius_b: ArrayLike, distance: Arr
 
 
 def _pair(radius_a: float, radius_b: float, distance: float) -> tuple[float, float, float]:
-    a = as_scalar(radius_a, "radius_a", "m", low=0.0, low_open=True)
-    b = as_scalar(radius_b, "radius_b", "m", low=0.0, low_open=True)
-    d = as_scalar(distance, "distance", "m")
+    a = as_scalar(radius_a, "radius_a", "m", low=0.0, high=MAX_LENGTH, low_open=True)
+    b = as_scalar(radius_b, "radius_b", "m", low=0.0, high=MAX_LENGTH, low_open=True)
+    d = as_scalar(distance, "distance", "m", low=-MAX_LENGTH, high=MAX_LENGTH)
     if a == b and d == 0.0:
         raise TiltwellError(
             f"radius_a and radius_b [m] at distance 0 must differ (equal loops in one plane coincide: "

@@ -13,7 +13,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.special import ellipe, ellipkm1
 
-from .._base.validation import as_points, as_scalar
+from .._base.validation import MAX_LENGTH, as_points, as_scalar
 from .constants import VACUUM_PERMEABILITY
 
 __all__ = ["BRACKET_SERIES", "SERIES_LIMIT", "WIRE_TOLERANCE", "loop_field", "loop_field_cylindrical"]
@@ -98,7 +98,10 @@ def loop_field(points: ArrayLike, radius: float, z: float, current: float) -> Fl
     Returns
     -------
     ndarray, shape (N, 3)
-        Field (B_x, B_y, B_z) [T].
+        Field (B_x, B_y, B_z) [T]. A point on the wire itself (within ``WIRE_TOLERANCE``
+        times the radius of it), where the field of a thin wire is infinite, gets NaN in
+        all three components: the answer, not an error, so the other points of the call
+        keep theirs.
 
     Notes
     -----
@@ -134,8 +137,8 @@ def loop_field(points: ArrayLike, radius: float, z: float, current: float) -> Fl
     array([[0.        , 0.        , 0.00628319]])
     """
     positions = as_points(points)
-    a = as_scalar(radius, "radius", "m", low=0.0, low_open=True)
-    plane = as_scalar(z, "z", "m")
+    a = as_scalar(radius, "radius", "m", low=0.0, high=MAX_LENGTH, low_open=True)
+    plane = as_scalar(z, "z", "m", low=-MAX_LENGTH, high=MAX_LENGTH)
     amps = as_scalar(current, "current", "A")
     x, y = positions[:, 0], positions[:, 1]
     b_rho_over_rho, b_z = loop_field_cylindrical(np.hypot(x, y), positions[:, 2] - plane, a, amps)

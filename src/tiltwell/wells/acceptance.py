@@ -16,7 +16,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .._base.display import html_table
-from .._base.validation import as_finite_array, as_integer, as_scalar
+from .._base.validation import MAX_SAMPLES, TiltwellError, as_boolean, as_finite_array, as_integer, as_scalar
 from ..physics.constants import millikelvin
 from ..physics.fields import CoilSet, IdealQuadrupole
 from .energetic import KNOWN_ESCAPE_SLACK, EnergeticAcceptance, energetic_acceptance
@@ -136,7 +136,8 @@ def trap_acceptance(
     below the 1-D barriers (else the lower of the axis and radial barriers is used).
     """
     a = as_scalar(deceleration, "deceleration", "m/s^2")
-    return acceptances_at(TrapSampler(trap, samples), np.array([a]), include_6d=include_6d, rtol=rtol)[0]
+    six = as_boolean(include_6d, "include_6d")
+    return acceptances_at(TrapSampler(trap, samples), np.array([a]), include_6d=six, rtol=rtol)[0]
 
 
 def acceptances_at(
@@ -246,7 +247,8 @@ def acceptance_curve(
 ) -> AcceptanceCurve:
     """Acceptances of ``trap`` at each of ``decelerations`` [m/s^2] (1-D array)."""
     values = as_finite_array(decelerations, "decelerations", "m/s^2", ndim=1)
-    results = acceptances_at(TrapSampler(trap, samples), values, include_6d=include_6d, rtol=rtol)
+    results = acceptances_at(TrapSampler(trap, samples), values, include_6d=as_boolean(include_6d, "include_6d"),
+                             rtol=rtol)
     return AcceptanceCurve(
         decelerations=values,
         longitudinal=np.array([r.longitudinal.area for r in results]),
@@ -290,11 +292,13 @@ class TrapSampler:
     """
 
     def __init__(self, trap: Trap, samples: int) -> None:
+        if not isinstance(trap, Trap):
+            raise TiltwellError(f"trap must be a tiltwell.Trap; got {type(trap).__name__}")
         (x0, x1), (y0, y1), (z0, z1) = trap.bounds
         self.trap = trap
         self.mass = trap.mass
         self.centre = (0.5 * (x0 + x1), 0.5 * (y0 + y1), 0.5 * (z0 + z1))
-        self.z = np.linspace(z0, z1, as_integer(samples, "samples", 3))
+        self.z = np.linspace(z0, z1, as_integer(samples, "samples", 3, MAX_SAMPLES))
         self.x = np.linspace(x0, x1, self.z.size)
         self.axis = trap.potential(self.centre[0], self.centre[1], self.z)
         self.radial: dict[float, FloatArray] = {}

@@ -218,6 +218,8 @@ def _checked_samples(z: ArrayLike, U: ArrayLike) -> tuple[FloatArray, FloatArray
     """``z`` [m] and ``U`` [J] as float64 arrays, checked in one compiled pass; only when
     that finds a fault do the validators run, to raise their message."""
     try:
+        if np.iscomplexobj(z) or np.iscomplexobj(U):  # the validators below refuse them
+            raise TypeError
         positions = np.ascontiguousarray(z, dtype=np.float64)
         potential = np.ascontiguousarray(U, dtype=np.float64)
     except (TypeError, ValueError):

@@ -8,17 +8,23 @@ row's workflows and the views all start from it. SI units.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TypeVar
 
+from .._base.validation import TiltwellError
 from ..coils.schedule import CoilTiming, Schedule, coil_timing, constant_deceleration
 from ..physics.beam import Beam
 from ..physics.source import Aperture, Source, gas
 from ..physics.species import LinearZeeman, Species, species
 from ..wells.traps import Trap
 from .devicemodel import row_array, trap_field
-from .scenario import Scenario
+from .scenario import Scenario, check_scenario
 
 __all__ = ["Built", "build", "timing"]
+
+
+_T = TypeVar("_T")
 
 
 @dataclass(frozen=True)
@@ -41,12 +47,12 @@ def build(scenario: Scenario) -> Built:
     The trap is the coil row's phase-averaged field where the scenario has ``[coils]``
     (unless ``[simulation] first_estimate``), else the ``[trap]`` section's, in the box of
     :func:`tiltwell.workflows.devicemodel.trap_box` (see that module)."""
-    particle = _species(scenario)
+    particle = _species(check_scenario(scenario))
     field, bounds, model = trap_field(scenario)
     trap = Trap(field, particle, bounds)
     b = scenario.beam
     source = Source(
-        gas=gas(b.gas),
+        gas=_named("[beam] gas", lambda: gas(b.gas)),
         temperature=b.temperature,
         speed_ratio=b.speed_ratio,
         relative_spread=b.relative_spread,
@@ -65,10 +71,18 @@ def build(scenario: Scenario) -> Built:
     return Built(particle, trap, source, beam, schedule, b.mismatch, model)
 
 
+def _named(key: str, look_up: Callable[[], _T]) -> _T:
+    """``look_up()``, its TiltwellError prefixed with the scenario key that named the thing."""
+    try:
+        return look_up()
+    except TiltwellError as error:
+        raise TiltwellError(f"{key}: {error}") from None
+
+
 def _species(scenario: Scenario) -> Species:
     s = scenario.species
     if s.mass is None or s.moment is None:
-        return species(s.name)
+        return _named("[species] name", lambda: species(s.name))
     return Species(s.name, s.mass, LinearZeeman(s.moment), state="custom, linear Zeeman", source="scenario file")
 
 
@@ -83,8 +97,13 @@ def timing(scenario: Scenario, schedule: Schedule) -> CoilTiming | None:
     d = scenario.deceleration
     if d.pitch is None or d.peak_current is None:
         return None
+    pitch, peak = d.pitch, d.peak_current
+    why = (f"[deceleration] rise_time: each coil's pulse must hold both ramps, and the shortest pulse comes at "
+           f"the top speed ({schedule.initial_velocity:.4g} m/s, the beam's mean plus [beam] mismatch) over the "
+           "coil's window of the pitch: lower rise_time or check mismatch and pitch")
     if scenario.coils is None:
-        return coil_timing(schedule, d.pitch, peak_current=d.peak_current, rise_time=d.rise_time)
+        return _named(why, lambda: coil_timing(schedule, pitch, peak_current=peak, rise_time=d.rise_time))
     row = row_array(scenario, schedule.length)
-    return coil_timing(schedule, row.pitch, first_coil=row.first, count=row.count, window=0.5 * row.active,
-                       peak_current=d.peak_current, rise_time=d.rise_time)
+    return _named(why, lambda: coil_timing(schedule, row.pitch, first_coil=row.first, count=row.count,
+                                           window=0.5 * row.active, peak_current=peak,
+                                           rise_time=d.rise_time))

@@ -28,7 +28,7 @@ from scipy.optimize import differential_evolution
 
 from .._base.validation import TiltwellError, as_integer
 from ..physics.limits import LIMIT_UNITS
-from .scenario import Scenario, key_spec
+from .scenario import Scenario, check_scenario, key_spec
 from .search import COLUMNS, SearchResult, Vary, check_varies, evaluate, key_value, point_scenario
 
 __all__ = ["FIGURES", "Optimum", "front_of", "optimise", "pareto_front"]
@@ -50,7 +50,10 @@ def pareto_front(gain: ArrayLike, cost: ArrayLike) -> NDArray[np.bool_]:
     ``cost``: ``j`` dominates ``i`` when ``gain[j] >= gain[i]`` and ``cost[j] <= cost[i]``
     with one of them strict. Points with a NaN are never on the front; identical points
     are both on it. One sort, O(n log n)."""
-    g, c = np.asarray(gain, dtype=float), np.asarray(cost, dtype=float)
+    try:
+        g, c = np.asarray(gain, dtype=float), np.asarray(cost, dtype=float)
+    except (TypeError, ValueError):
+        raise TiltwellError("gain and cost must be arrays of real numbers (NaN: not on the front)") from None
     if g.shape != c.shape or g.ndim != 1:
         raise TiltwellError(f"gain and cost must be 1-D of one length; got shapes {g.shape} and {c.shape}")
     mask = np.zeros(g.size, dtype=bool)
@@ -211,7 +214,7 @@ def _sensitivity(objective: _Objective, x: NDArray[np.float64], bounds: Sequence
     return out
 
 
-def optimise(scenario: Scenario, varies: Sequence[Vary], figure: str | None = None, *,
+def optimise(scenario: Scenario, varies: Sequence[Vary | str] | str, figure: str | None = None, *,
              max_length: float | None = None, seed: int = 0, popsize: int = 10, maxiter: int = 40,
              tol: float = 1e-4, workers: int | Callable[[Callable[..., Any], Iterable[Any]], Iterable[Any]] = 1,
              polish: bool = False) -> Optimum:
@@ -226,6 +229,7 @@ def optimise(scenario: Scenario, varies: Sequence[Vary], figure: str | None = No
     figure is a sampled estimate and its limits are edges, where a gradient search gains
     nothing).
     """
+    check_scenario(scenario)
     varies = tuple(check_varies(varies))
     bounds = _bounds(varies)
     if figure is None:

@@ -15,7 +15,8 @@ from dataclasses import replace
 
 import numpy as np
 
-from ..dynamics.capture import CaptureEstimates, capture_estimates, default_time_step
+from .._base.validation import TiltwellError
+from ..dynamics.capture import CaptureEstimates, capture_estimates, checked_step, default_time_step
 from ..dynamics.device import track_device
 from .assemble import Built, build
 from .coilrun import coil_run
@@ -45,6 +46,11 @@ def track_through_row(scenario: Scenario, built: Built, estimates: CaptureEstima
     step = scenario.simulation.time_step
     if step is None:
         step = default_time_step(estimates.acceptance, built.species.mass)
+    else:
+        try:
+            checked_step(step, estimates.acceptance, built.species.mass)
+        except TiltwellError as error:
+            raise TiltwellError(f"[simulation] {error}") from None
     start = np.array([0.0, 0.0, float(schedule.position(0.0)), 0.0, 0.0, float(schedule.velocity(0.0))])
     result = track_device(run.array, run.times, built.species, sample + start, schedule=schedule,
                           gradient=run.gradient, time_step=min(step, schedule.duration), duration=schedule.duration,
@@ -62,11 +68,22 @@ def estimate(scenario: Scenario, built: Built | None = None, *, progress: bool =
     built = build(scenario) if built is None else built
     sim, schedule = scenario.simulation, built.schedule
     through_row = sim.track and sim.track_through == "row" and model_of(scenario) == "row"
-    estimates = capture_estimates(
-        built.trap, schedule.deceleration, built.beam, schedule.duration,
-        particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
-        method=sim.method, track_particles=sim.track and not through_row, rtol=sim.rtol, samples=sim.samples,
-        switch_on_time=min(sim.switch_on_time, schedule.duration), progress=progress,
-        spin_flips=sim.spin_flips and not through_row,
-    )
+    if sim.track and sim.switch_on_time > schedule.duration:
+        raise TiltwellError(f"[simulation] switch_on_time [s] must be at most the run, {schedule.duration:.4g} s from "
+                            f"switch-on to the end of the deceleration; got {sim.switch_on_time:g}")
+    try:
+        estimates = capture_estimates(
+            built.trap, schedule.deceleration, built.beam, schedule.duration,
+            particles=sim.particles, seed=sim.seed, mismatch=built.mismatch, time_step=sim.time_step,
+            method=sim.method, track_particles=sim.track and not through_row, rtol=sim.rtol, samples=sim.samples,
+            switch_on_time=min(sim.switch_on_time, schedule.duration), progress=progress,
+            spin_flips=sim.spin_flips and not through_row,
+        )
+    except TiltwellError as error:  # name the scenario's key where the argument is one
+        text = str(error)
+        key = ("time_step" if text.startswith(("time_step [s]", "duration / time_step")) else
+               "particles" if "particles (sampled and tracked) needs" in text else None)
+        if key is None:
+            raise
+        raise TiltwellError(f"[simulation] {key}: {text} (the run is {schedule.duration:.4g} s)") from None
     return track_through_row(scenario, built, estimates, progress=progress) if through_row else estimates

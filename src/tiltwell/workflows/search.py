@@ -42,7 +42,7 @@ from .._base.validation import TiltwellError
 from ..physics.limits import LIMIT_UNITS
 from .coilreport import row_load
 from .report import UNITS, summarise
-from .scenario import Scenario, dumps, key_spec
+from .scenario import Scenario, check_scenario, dumps, key_spec
 from .searchkeys import Vary, check_varies, design_points, key_value, make_vary, parse_vary
 from .searchstore import STORE_FORMAT, SearchStore, read_store
 
@@ -228,7 +228,7 @@ def _describe(error: BaseException) -> str:
     return " ".join(text.split())[:500]
 
 
-def search(scenario: Scenario, varies: Sequence[Vary], *, sample: int | None = None, method: str = "lhs",
+def search(scenario: Scenario, varies: Sequence[Vary | str] | str, *, sample: int | None = None, method: str = "lhs",
            seed: int = 0, max_length: float | None = None, executor: Executor | None = None,
            store: str | os.PathLike[str] | None = None, progress: bool = False) -> SearchResult:
     """Evaluate every point of :func:`design_points` (``varies``, ``sample``, ``method``,
@@ -243,6 +243,7 @@ def search(scenario: Scenario, varies: Sequence[Vary], *, sample: int | None = N
     a KeyboardInterrupt cancels what has not started and propagates
     (the store keeps everything finished). ``progress``: a tqdm bar over points.
     """
+    check_scenario(scenario)
     varies = check_varies(varies)
     if max_length is not None and not (isinstance(max_length, (int, float)) and math.isfinite(max_length)
                                        and max_length > 0):

@@ -120,23 +120,34 @@ def parse_vary(text: str) -> Vary:
                      log=log)
 
 
-def check_varies(varies: Sequence[Vary]) -> list[Vary]:
-    """``varies`` as a list, refused when empty, with a key twice, or with both the
-    deceleration and the length (one fixes the other)."""
-    varies = list(varies)
-    if not varies:
+def check_varies(varies: Sequence[Vary | str] | str) -> list[Vary]:
+    """``varies`` as a list of :class:`Vary` (a text is read by :func:`parse_vary`), refused
+    when empty, with a key twice, or with both the deceleration and the length (one fixes
+    the other)."""
+    items = [varies] if isinstance(varies, str) else varies
+    if not isinstance(items, (list, tuple)):
+        raise TiltwellError(f"varies must be a list of Vary or of texts section.key=LOW:HIGH[:N]; "
+                            f"got {type(varies).__name__}")
+    checked: list[Vary] = []
+    for v in items:
+        item = parse_vary(v) if isinstance(v, str) else v
+        if not isinstance(item, Vary):
+            raise TiltwellError(f"each varied key must be a Vary or a text section.key=LOW:HIGH[:N]; "
+                                f"got {type(v).__name__}")
+        checked.append(item)
+    if not checked:
         raise TiltwellError("a search needs at least one varied key")
-    names = [v.name for v in varies]
+    names = [v.name for v in checked]
     for name in names:
         if names.count(name) > 1:
             raise TiltwellError(f"{name} is varied twice; give each key once")
     if "deceleration.deceleration" in names and "deceleration.length" in names:
         raise TiltwellError("vary deceleration.deceleration or deceleration.length, not both: one fixes the other "
                             "at the target final velocity")
-    return varies
+    return checked
 
 
-def design_points(varies: Sequence[Vary], sample: int | None = None, *, method: str = "lhs",
+def design_points(varies: Sequence[Vary | str] | str, sample: int | None = None, *, method: str = "lhs",
                   seed: int = 0) -> list[dict[str, float]]:
     """The points of a search, each a ``{name: value}`` dict.
 

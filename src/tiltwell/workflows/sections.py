@@ -11,6 +11,7 @@ from __future__ import annotations
 import dataclasses
 from dataclasses import dataclass
 
+from ..coils.array import MAX_ACTIVE, MAX_PHASES
 from ..coils.drive import DEFAULT_HEAT_TRANSFER, DEFAULT_REPETITION_RATE
 from ..physics.limits import HardwareLimits
 from .keys import key
@@ -46,14 +47,14 @@ class CoilsSection:
                              "at most pi/4)", 0.0, 1.0, default=0.6, open_low=True)
     max_current: float | None = key("number", "A", "largest current per turn (default: [deceleration] peak_current)",
                                     0.0, 1e6, open_low=True)
-    active: int = key("even integer", "", "coils carrying current at once", 2, 1000, default=4)
+    active: int = key("even integer", "", "coils carrying current at once", 2, MAX_ACTIVE, default=4)
     handover: float = key("number", "pitches", "distance over which a coil is weighted into or out of the active "
                           "window, at most active/2 (0: abrupt, the currents jump)", 0.0, 500.0, default=0.5)
     gradient: float | None = key("number", "T/m", "wanted axial gradient at the zero (default: the [trap] quadrupole "
                                  "gradient; required for other traps)", 0.0, 1e5, open_low=True)
     plan_step: float = key("number", "s", "time between the points of the current waveform table", 0.0, 1.0,
                            default=2e-6, open_low=True)
-    phases: int = key("integer", "", "trap positions across one pitch in the phase scan", 1, 1000, default=16)
+    phases: int = key("integer", "", "trap positions across one pitch in the phase scan", 1, MAX_PHASES, default=16)
     repetition_rate: float = key("number", "Hz", "shots per second, for the average power and the steady temperature "
                                  "rise", 0.0, 1e4, default=DEFAULT_REPETITION_RATE, open_low=True)
     heat_transfer: float = key("number", "W/(m^2 K)", "cooling of the winding's outer surface to a sink at room "

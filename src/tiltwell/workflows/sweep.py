@@ -23,7 +23,7 @@ from tqdm.auto import tqdm
 from .._base.validation import TiltwellError, as_finite_array
 from .report import UNITS, summarise
 from .._base.files import table_text, write_table
-from .scenario import Scenario
+from .scenario import Scenario, check_scenario
 
 __all__ = ["COLUMNS", "sweep", "sweep_csv"]
 
@@ -72,6 +72,7 @@ def sweep(
     Give exactly one of ``decelerations`` and ``lengths`` (1-D, positive). The rows come
     back in the order of the input whatever the executor.
     """
+    check_scenario(scenario)
     if decelerations is not None and lengths is None:
         key, unit, given = "deceleration", "m/s^2", decelerations
     elif lengths is not None and decelerations is None:
