@@ -32,6 +32,7 @@ from tiltwell.workflows.figure_data import (
     CURRENT_PITCHES,
     DRAWN_PARTICLES,
     SWEEP_FRACTIONS,
+    SWEEP_PARTICLES,
     ScenarioFigureData,
     coil_figure_data,
     scenario_figure_data,
@@ -229,7 +230,11 @@ def test_curve_and_sweep_span_the_critical_deceleration(demo: scenario.Scenario,
     v0, v1 = build(demo).beam.velocity + demo.beam.mismatch, demo.deceleration.final_velocity
     lengths = [row["length"] for row in data.sweep_rows]
     np.testing.assert_allclose(lengths, (v0**2 - v1**2) / (2.0 * decelerations), rtol=1e-9)  # L = dv^2 / (2 a)
-    assert all(row["captured_fraction_mc"] is None for row in data.sweep_rows)  # trajectories off
+    # the tracked estimate too (the demo tracks): each point's own sweep row, computed again here
+    tracked = tw.sweep(demo.replace("simulation", particles=min(demo.simulation.particles, SWEEP_PARTICLES)),
+                       decelerations[:1])
+    assert data.sweep_rows[0]["captured_fraction_mc"] == tracked[0]["captured_fraction_mc"]
+    assert all(0.0 <= row["captured_fraction_mc"] <= 1.0 for row in data.sweep_rows)
 
 
 def test_coil_stretch_follows_the_schedule(demo: scenario.Scenario, data: ScenarioFigureData) -> None:
@@ -247,6 +252,9 @@ def test_coil_stretch_follows_the_schedule(demo: scenario.Scenario, data: Scenar
     assert plan.positions[-1] <= CURRENT_PITCHES * pitch < plan.positions[-1] + v0 * demo.coils.plan_step
     assert plan.currents.shape == (times.size, plan.currents.shape[1]) and times[0] == 0.0
     assert data.coils.scan.phases.size == 3
+    # the whole run the title names: (v0 - vf) / a (kinematics), to one table step
+    assert data.coils.duration == pytest.approx((v0 - schedule.final_velocity) / data.deceleration,
+                                                abs=demo.coils.plan_step)
 
 
 def test_coil_figure_data_rejects_what_is_not_a_coil_run(data: ScenarioFigureData) -> None:

@@ -112,8 +112,9 @@ def test_potential_lines_follow_the_axis_closed_form(trap: tw.Trap, no_pyplot_st
 def test_potential_escape_energy_and_barriers_are_the_closed_forms(trap: tw.Trap,
                                                                    no_pyplot_state: list[Figure]) -> None:
     """Tilted V well of the capped quadrupole: front barrier at the cap, z = EDGE, height
-    W(B_max) - m a EDGE (= the escape energy); back barrier at the box wall z = -2 EDGE,
-    height W(B_max) + 2 m a EDGE."""
+    W(B_max) - m a EDGE (= the escape energy); behind the bottom the capped potential still
+    rises to the box wall z = -2 EDGE, height W(B_max) + 2 m a EDGE: marked as the wall, not
+    as a barrier (there is no maximum there)."""
     a = 0.3 * CRITICAL
     figure = figures.potential(trap, a)
     no_pyplot_state.append(figure)
@@ -121,7 +122,10 @@ def test_potential_escape_energy_and_barriers_are_the_closed_forms(trap: tw.Trap
     escape = artist(figure, "escape-energy").get_ydata()
     assert escape[0] == pytest.approx(millikelvin(cap - tilt), rel=1e-9)
     assert escape[0] == pytest.approx(millikelvin(tw.longitudinal_acceptance(trap, a).escape_energy), rel=1e-12)
-    for gid, z, height in (("barrier-front", EDGE, cap - tilt), ("barrier-back", -2 * EDGE, cap + 2 * tilt)):
+    assert not has(figure, "barrier-back") and not has(figure, "box-wall-front")
+    assert any("box wall" in text.get_text() for text in figure.axes[0].texts)
+    assert not any("back barrier" in text.get_text() for text in figure.axes[0].texts)
+    for gid, z, height in (("barrier-front", EDGE, cap - tilt), ("box-wall-back", -2 * EDGE, cap + 2 * tilt)):
         marker = artist(figure, gid)
         assert marker.get_xdata()[0] == pytest.approx(z * 1e3, rel=1e-9)
         assert marker.get_ydata()[0] == pytest.approx(millikelvin(height), rel=1e-9)
@@ -286,6 +290,24 @@ def test_survival_line_is_the_tracking_result(no_pyplot_state: list[Figure]) -> 
     np.testing.assert_allclose(line.get_xdata(), [0.0, 1.0, 2.0, 3.0, 4.0, 5.0])  # ms
     np.testing.assert_array_equal(line.get_ydata(), result.survival)
     assert "0.3 ± 0.14" in line.get_label()  # 3 of 10 kept; sqrt(0.3 * 0.7 / 10) = 0.145
+    assert "verlet" not in figure.axes[0].get_title() and not has(figure, "outside-box")
+    assert figures.export.details_of(figure) == "integrator: verlet, time step 0.001 s"
+
+
+def test_survival_says_what_starts_outside_the_box(no_pyplot_state: list[Figure], tmp_path: Path) -> None:
+    """A count of 0.52 at switch-on: 48 % of the sample started outside the box (said on the
+    figure); the integrator goes into the PNG's metadata (read back by matplotlib's reader)."""
+    kept = np.array([True] * 3 + [False] * 7)
+    result = tw.TrackingResult(times=np.linspace(0.0, 1e-3, 3), survival=np.array([0.52, 0.4, 0.3]),
+                               final=np.zeros((10, 6)), kept=kept, lost_time=np.where(kept, np.inf, 0.0),
+                               method="yoshida4", time_step=5e-4)
+    figure = figures.survival(result)
+    no_pyplot_state.append(figure)
+    assert "48 % of the sample starts outside\nthe trap box" in artist(figure, "outside-box").get_text()
+    path = figures.save(figure, tmp_path / "survival.png", dpi=50)
+    from PIL import Image
+
+    assert Image.open(path).text["Comment"] == "integrator: yoshida4, time step 0.0005 s"
 
 
 def test_drawing_into_a_given_axes_returns_its_figure(trap: tw.Trap, no_pyplot_state: list[Figure]) -> None:

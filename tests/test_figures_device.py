@@ -120,6 +120,7 @@ def test_default_window_is_six_coils_around_the_middle_with_the_caution(made: li
     caution = artist(figure, "electrical-caution")
     assert caution.get_text() == tw.ELECTRICAL_CAUTION and caution.get_wrap()  # wrapped to the figure when drawn
     assert not caution.get_visible()  # carried for the file's metadata, drawn only when asked
+    assert "of the" not in figure.axes[0].get_title(loc="left")  # the whole run shown: no window named
     drawn_figure = figures.current_pulses(plan, times, draw_caution=True)
     made.append(drawn_figure)
     assert artist(drawn_figure, "electrical-caution").get_visible()
@@ -282,3 +283,12 @@ def test_drawing_into_a_given_axes_returns_its_figure(comparison: DeviceComparis
 def test_bad_input_names_the_argument(comparison: DeviceComparison, call, name: str) -> None:  # type: ignore[no-untyped-def]
     with pytest.raises(tw.TiltwellError, match=name):
         call(comparison)
+
+
+def test_a_stretch_of_the_run_is_named_in_the_title(made: list[Figure]) -> None:
+    """The first fifth of the schedule's duration drawn: the title says which part of the run."""
+    times = np.linspace(0.0, 0.2 * SCHEDULE.duration, 11)
+    figure = figures.current_pulses(tw.waveforms(ROW, SCHEDULE, GRADIENT, times), times, run_duration=SCHEDULE.duration)
+    made.append(figure)
+    expected = f"the first {0.2 * SCHEDULE.duration * 1e3:.3g} ms of the {SCHEDULE.duration * 1e3:.3g} ms run"
+    assert figure.axes[0].get_title(loc="left").endswith(expected)

@@ -22,10 +22,15 @@ def test_readme_has_a_tour_and_the_two_commands() -> None:
 
 @pytest.mark.slow
 @pytest.mark.parametrize("index", range(len(_python_blocks())))
-def test_readme_python_block_runs(index: int, capsys: pytest.CaptureFixture[str]) -> None:
+def test_readme_python_block_runs(index: int, capsys: pytest.CaptureFixture[str], tmp_path: Path,
+                                  monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.chdir(tmp_path)  # a block that saves figures writes them here, not into the checkout
     namespace: dict[str, object] = {}
     exec(compile(_python_blocks()[index], f"README.md block {index}", "exec"), namespace)
     assert capsys.readouterr().out  # the tour prints its numbers
+    if "write_figures" in _python_blocks()[index]:  # the figures a block draws reach files
+        assert sorted(p.name for p in (tmp_path / "tour-figures").iterdir()) == [
+            "arrivals.png", "currents.png", "phase-scan.png", "phase-space.png", "survival.png"]
     kept = namespace.get("kept")
     if isinstance(kept, float):
         assert 0.0 < kept <= 1.0

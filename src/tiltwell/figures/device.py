@@ -10,6 +10,7 @@ markers, so the two differ in more than colour.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from typing import Any
 
@@ -63,7 +64,7 @@ def _window(plan: CurrentPlan, coils: Sequence[int] | None) -> list[int]:
 
 @styled
 def current_pulses(plan: CurrentPlan, times: ArrayLike, *, coils: Sequence[int] | None = None,
-                   draw_caution: bool = False, ax: Axes | None = None) -> Figure:
+                   draw_caution: bool = False, run_duration: float | None = None, ax: Axes | None = None) -> Figure:
     """Current per turn of a window of coils against time, with the electrical caution.
 
     Parameters
@@ -75,6 +76,9 @@ def current_pulses(plan: CurrentPlan, times: ArrayLike, *, coils: Sequence[int] 
     coils : sequence of int, optional
         Coil indices to draw (gids ``coil-<k>``); default :data:`DEFAULT_COILS` neighbours
         around the middle of the coils that ever carry current.
+    run_duration : float, optional
+        The whole run [s], when ``times`` is a stretch of it: the title names the stretch
+        shown and the run ("the first 0.09 ms of the 7.39 ms run").
     ax : matplotlib Axes, optional
 
     Notes
@@ -97,7 +101,11 @@ def current_pulses(plan: CurrentPlan, times: ArrayLike, *, coils: Sequence[int] 
     ax.axhline(0.0, color=PALETTE["slate"], lw=0.5, zorder=0)
     ax.set_xlabel("time since switch-on [ms]")
     ax.set_ylabel("current per turn [A]")
-    ax.set_title(f"coil currents, coils {chosen[0]} to {chosen[-1]}" if len(chosen) > 1 else f"coil {chosen[0]} current")
+    title = f"coil currents, coils {chosen[0]} to {chosen[-1]}" if len(chosen) > 1 else f"coil {chosen[0]} current"
+    if run_duration is not None and math.isfinite(run_duration) and t[-1] < run_duration * (1 - 1e-9):
+        span = "the first" if t[0] <= 0.0 else f"{t[0] * 1e3:.3g} ms to"
+        title += f": {span} {t[-1] * 1e3:.3g} ms of the {run_duration * 1e3:.3g} ms run"
+    ax.set_title(title)
     add_legend(ax, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     _caution(ax, bool(draw_caution))
     return figure

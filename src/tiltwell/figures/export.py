@@ -17,13 +17,19 @@ from .._base.resources import BYTES_PER_PIXEL, check_memory
 from .._base.validation import TiltwellError, as_scalar
 from .style import style_context
 
-__all__ = ["CAUTION_GID", "caution_of", "check_export", "export_formats", "save", "write_figures"]
+__all__ = ["CAUTION_GID", "DETAILS_GID", "caution_of", "check_export", "details_of", "export_formats", "save",
+           "write_figures"]
 
 #: gid of the text artist by which a figure that sizes hardware carries the electrical caution.
 CAUTION_GID = "electrical-caution"
 #: The metadata field that takes the caution, by format (PDF's document info, Dublin Core in
 #: SVG, a PNG text chunk).
 _CAUTION_FIELD = {"pdf": "Subject", "svg": "Description", "png": "Description"}
+#: gid of the (hidden) text artist by which a figure carries how it was computed (the
+#: integrator, a time step): kept out of the title, written into the file's metadata.
+DETAILS_GID = "computation-details"
+#: The metadata field that takes the details, by format.
+_DETAILS_FIELD = {"pdf": "Keywords", "svg": "Keywords", "png": "Comment"}
 
 #: Suffix -> matplotlib format, and the metadata that would make files differ run to run.
 _FORMATS: dict[str, tuple[str, dict[str, Any]]] = {
@@ -63,6 +69,9 @@ def save(figure: Figure, path: str | os.PathLike[str], *, width: float | None = 
     caution = caution_of(figure)
     if caution is not None:
         metadata = {**metadata, _CAUTION_FIELD[kind]: caution}
+    details = details_of(figure)
+    if details is not None:
+        metadata = {**metadata, _DETAILS_FIELD[kind]: details}
     old = (float(figure.get_size_inches()[0]), float(figure.get_size_inches()[1]))
     size = (
         old[0] if width is None else as_scalar(width, "width", "in", low=0.0, high=MAX_SIZE, low_open=True),
@@ -88,6 +97,14 @@ def caution_of(figure: Figure) -> str | None:
     """The caution a figure carries (the text of its artist with gid :data:`CAUTION_GID`,
     drawn or not), or None; :func:`save` writes it into the file's metadata."""
     found = figure.findobj(lambda artist: artist.get_gid() == CAUTION_GID)
+    texts = [artist.get_text() for artist in found if hasattr(artist, "get_text")]
+    return texts[0] if texts else None
+
+
+def details_of(figure: Figure) -> str | None:
+    """How a figure was computed (the text of its artist with gid :data:`DETAILS_GID`), or
+    None; :func:`save` writes it into the file's metadata."""
+    found = figure.findobj(lambda artist: artist.get_gid() == DETAILS_GID)
     texts = [artist.get_text() for artist in found if hasattr(artist, "get_text")]
     return texts[0] if texts else None
 

@@ -34,7 +34,8 @@ def coil_figures(data: CoilFigureData, *, draw_caution: bool = False) -> dict[st
     if not isinstance(data, CoilFigureData):
         raise TiltwellError(f"data must be a CoilFigureData (tiltwell.workflows.figure_data.coil_figure_data); "
                             f"got {type(data).__name__}")
-    return {"coil-currents": current_pulses(data.plan, data.times, draw_caution=draw_caution),
+    return {"coil-currents": current_pulses(data.plan, data.times, draw_caution=draw_caution,
+                                            run_duration=data.duration),
             "coil-phases": phase_scan(data.scan)}
 
 

@@ -16,6 +16,7 @@ from ..coils.schedule import arrival_histogram
 from ..dynamics.tracking import TrackingResult
 from ..workflows.calibration import Calibration, Trace
 from ..workflows.traces import Traces
+from .export import DETAILS_GID
 from .style import PALETTE, add_legend, canvas, styled
 
 __all__ = ["calibration_fit", "detector_traces", "survival", "time_of_flight"]
@@ -41,16 +42,31 @@ def time_of_flight(times: ArrayLike, *, bins: int | ArrayLike = 50, ax: Axes | N
 
 @styled
 def survival(result: TrackingResult, *, ax: Axes | None = None) -> Figure:
-    """Fraction of tracked particles still trapped (gid ``survival``) against time [ms]."""
+    """Fraction of tracked particles still trapped (gid ``survival``) against time [ms].
+
+    Where the count at switch-on is below 1 (the sampled beam is wider than the trap box,
+    and the particles outside it are lost at once), a note says how much (gid
+    ``outside-box``). The integrator and its step are in the file's metadata
+    (:data:`~tiltwell.figures.export.DETAILS_GID`), not in the title."""
     if not isinstance(result, TrackingResult):
         raise TiltwellError(f"result must be a TrackingResult; got {type(result).__name__}")
     figure, ax = canvas(ax)
     ax.plot(result.times * 1e3, result.survival, color=PALETTE["blue"],
             label=f"kept {result.fraction:.3g} ± {result.binomial_error:.2g} of {result.kept.size}", gid="survival")
+    start = float(result.survival[0]) if result.survival.size else 1.0
+    if start < 1.0:
+        note = ax.text(0.02, 0.04, f"{100 * (1 - start):.3g} % of the sample starts outside\nthe trap box and is "
+                       "lost at switch-on", transform=ax.transAxes, fontsize=7, color=PALETTE["ink"],
+                       gid="outside-box")
+        note.set_in_layout(False)
+    details = ax.text(0.0, 0.0, f"integrator: {result.method}, time step {result.time_step:.3g} s",
+                      transform=ax.transAxes, gid=DETAILS_GID)
+    details.set_visible(False)
+    details.set_in_layout(False)
     ax.set_ylim(0.0, 1.02)
     ax.set_xlabel("time since switch-on [ms]")
     ax.set_ylabel("fraction still trapped")
-    ax.set_title(f"survival in the decelerating trap ({result.method})")
+    ax.set_title("survival in the decelerating trap")
     add_legend(ax, loc="upper right")
     return figure
 

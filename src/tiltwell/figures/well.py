@@ -32,7 +32,9 @@ def potential(trap: Trap, deceleration: float, *, ax: Axes | None = None) -> Fig
     ``potential-decelerating``) from :meth:`Trap.axis_cut` in mK against z in mm, the
     escape energy of :func:`tiltwell.longitudinal_acceptance` (gid ``escape-energy``) and
     the back and front barriers, the highest ``U_eff`` on each side of the bottom
-    (gids ``barrier-back``, ``barrier-front``).
+    (gids ``barrier-back``, ``barrier-front``) where it is a maximum of the potential; where
+    the potential still rises at the wall of the box, that point is marked as the box wall
+    (gids ``box-wall-back``, ``box-wall-front``), not as a barrier.
 
     ``deceleration`` in m/s^2; ``ax`` an optional matplotlib Axes to draw into.
     """
@@ -48,16 +50,19 @@ def potential(trap: Trap, deceleration: float, *, ax: Axes | None = None) -> Fig
         escape = millikelvin(well.escape_energy)
         ax.axhline(escape, color=PALETTE["rose"], ls=":", lw=0.9, label=f"escape energy {escape:.4g} mK",
                    gid="escape-energy")
-        # on each side, the highest sample nearest the bottom (walking outwards from it)
+        # on each side, the highest sample nearest the bottom (walking outwards from it); a
+        # barrier only where that is a maximum of the potential, not the wall of the box
         for side, outwards in (("back", np.flatnonzero(z < well.z_bottom)[::-1]),
                                ("front", np.flatnonzero(z > well.z_bottom))):
             top = int(outwards[np.argmax(tilted[outwards])])
             height = millikelvin(tilted[top])
-            ax.plot([z[top] * 1e3], [height], ls="none", marker="o", mfc="none", mec=PALETTE["amber"], mew=1.0, ms=5,
-                    label=None, gid=f"barrier-{side}")
-            ax.annotate(f"{side} barrier {height:.4g} mK", (z[top] * 1e3, height), xytext=(0, 7),
-                        textcoords="offset points", ha="left" if side == "back" else "center", va="bottom",
-                        fontsize=7, color=PALETTE["ink"])
+            at_wall = top == int(outwards[-1])
+            gid, words = (f"box-wall-{side}", f"box wall {height:.4g} mK, still rising") if at_wall else (
+                f"barrier-{side}", f"{side} barrier {height:.4g} mK")
+            ax.plot([z[top] * 1e3], [height], ls="none", marker="s" if at_wall else "o", mfc="none",
+                    mec=PALETTE["slate" if at_wall else "amber"], mew=1.0, ms=5, label=None, gid=gid)
+            ax.annotate(words, (z[top] * 1e3, height), xytext=(0, 7), textcoords="offset points",
+                        ha="left" if side == "back" else "center", va="bottom", fontsize=7, color=PALETTE["ink"])
     else:
         ax.text(0.5, 0.92, "no well: the tilt exceeds the critical deceleration", transform=ax.transAxes,
                 ha="center", color=PALETTE["rose"], gid="no-well")

@@ -32,7 +32,7 @@ from .scenario import Scenario
 from .sweep import sweep
 
 __all__ = ["ACCEPTANCE_POINTS", "ACCEPTANCE_SPAN", "CURRENT_PITCHES", "DRAWN_PARTICLES", "SWEEP_FRACTIONS",
-           "CoilFigureData", "ScenarioFigureData", "coil_figure_data", "scenario_figure_data"]
+           "SWEEP_PARTICLES", "CoilFigureData", "ScenarioFigureData", "coil_figure_data", "scenario_figure_data"]
 
 FloatArray = NDArray[np.float64]
 
@@ -40,6 +40,10 @@ FloatArray = NDArray[np.float64]
 DRAWN_PARTICLES = 3000
 #: Trade-off sweep of a scenario's figures, in units of the critical deceleration.
 SWEEP_FRACTIONS = (0.2, 0.35, 0.5, 0.65, 0.8, 0.95)
+#: Particles tracked at each point of that sweep (at most; the scenario's own count if
+#: fewer), so the trade-off figure shows the trajectories' estimate beside the other two at
+#: a few seconds' cost (binomial error about 0.005 at a fraction of 0.2).
+SWEEP_PARTICLES = 5000
 #: The acceptance curve spans 0 to this multiple of the critical deceleration ...
 ACCEPTANCE_SPAN = 1.1
 #: ... at this many equally spaced decelerations.
@@ -66,12 +70,16 @@ class CoilFigureData:
     positions : ndarray, shape (count,)
         z_k [m] of every coil of the row, column k of ``plan.currents``
         (:func:`tiltwell.workflows.coilreport.coil_positions`).
+    duration : float
+        The whole run [s] (the last time of the run's table), which the figure names beside
+        the stretch it shows.
     """
 
     plan: CurrentPlan
     times: FloatArray
     scan: PhaseScan
     positions: FloatArray
+    duration: float = float("nan")
 
 
 def coil_figure_data(run: CoilRun, scan: PhaseScan) -> CoilFigureData:
@@ -85,7 +93,8 @@ def coil_figure_data(run: CoilRun, scan: PhaseScan) -> CoilFigureData:
     plan = run.plan
     rows = slice(0, max(int(np.count_nonzero(plan.positions <= CURRENT_PITCHES * run.array.pitch)), 2))
     early = CurrentPlan(plan.positions[rows], plan.currents[rows], plan.gradient[rows], plan.limited[rows])
-    return CoilFigureData(early, read_only_copy(run.times[rows]), scan, read_only_copy(run.array.positions))
+    return CoilFigureData(early, read_only_copy(run.times[rows]), scan, read_only_copy(run.array.positions),
+                          float(run.times[-1]))
 
 
 @dataclass(frozen=True, eq=False)
@@ -116,7 +125,8 @@ class ScenarioFigureData:
         when the trap has no well even at rest.
     sweep_rows : tuple of dict, or None
         :func:`tiltwell.workflows.sweep.sweep` rows at :data:`SWEEP_FRACTIONS` of the
-        critical deceleration (trajectories off); None with ``curve``.
+        critical deceleration, with trajectories of at most :data:`SWEEP_PARTICLES` particles
+        a point where the scenario tracks; None with ``curve``.
     coils : CoilFigureData or None
         With a ``[coils]`` section.
     tracking : TrackingResult or None
@@ -174,7 +184,8 @@ def scenario_figure_data(scenario: Scenario, *, particles: int | None = None) ->
     if critical > 0.0:
         curve = acceptance_curve(built.trap, np.linspace(0.0, ACCEPTANCE_SPAN * critical, ACCEPTANCE_POINTS),
                                  samples=sim.samples)
-        rows = tuple(sweep(scenario.replace("simulation", track=False), np.array(SWEEP_FRACTIONS) * critical))
+        swept = scenario.replace("simulation", particles=min(sim.particles, SWEEP_PARTICLES)) if sim.track else scenario
+        rows = tuple(sweep(swept, np.array(SWEEP_FRACTIONS) * critical))
     coils = None
     if scenario.coils is not None:
         run = coil_run(scenario, plan)
