@@ -377,6 +377,8 @@ def test_save_html_is_standalone_with_inline_bokehjs(app: Explorer, tmp_path: Pa
     assert INLINE.js_raw[0][:5000] in text  # the start of bokeh.min.js itself, inlined
     assert f"{app.state['longitudinal_acceptance'] * 1e3:.4g} mm" in text  # the readouts head the page
     assert list(tmp_path.iterdir()) == [path]
+    assert "Monte-Carlo button" not in text and "6-D button" not in text  # no row points to a missing button
+    assert "readouts not computed before saving are left out" in text
 
 
 @pytest.mark.slow
@@ -516,3 +518,30 @@ def test_save_figures_writes_the_scenario_set(app: Explorer, tmp_path: Path) -> 
     assert sorted(path.name for path in paths) == sorted(expected)
     assert app.status.value == f"figures written to {tmp_path / 'figures'}"
     assert app.errors == []
+
+
+def test_legends_sit_under_the_plots_not_on_the_data() -> None:
+    """Every explorer figure with a legend keeps it in the panel under the plot (Bokeh's
+    layout, outside the data area), in at most two rows."""
+    from bokeh.models import Legend
+
+    from tiltwell.explorer import coilviews, views
+
+    drawn = {**views.make_views()[0], **coilviews.make_views()[0]}
+    with_legend = {name: p for name, p in drawn.items() if p.legend}
+    assert set(with_legend) == {"potential", "longitudinal", "transverse", "tradeoff", "depth", "acceptance"}
+    for name, p in with_legend.items():
+        assert not any(isinstance(item, Legend) for item in p.center), name
+        (legend,) = [item for item in p.below if isinstance(item, Legend)]
+        assert legend.orientation == "horizontal" and legend.nrows in ("auto", 1, 2), name
+
+
+def test_the_save_buttons_default_to_a_folder_outside_the_checkout(monkeypatch: pytest.MonkeyPatch,
+                                                                   tmp_path: Path) -> None:
+    from tiltwell.explorer.widgets import output_paths
+
+    monkeypatch.setenv("TILTWELL_OUTPUT", str(tmp_path / "out"))
+    assert output_paths() == (str(tmp_path / "out" / "scenario.toml"), str(tmp_path / "out" / "figures"))
+    monkeypatch.delenv("TILTWELL_OUTPUT")
+    monkeypatch.setenv("HOME", str(tmp_path))
+    assert output_paths()[0] == str(tmp_path / "tiltwell-output" / "scenario.toml")

@@ -131,8 +131,8 @@ def test_the_part_is_a_closed_section_that_computes_only_when_open() -> None:
     try:
         part = app.coil_array
         children = list(app.widget.children)
-        # above the detector and design sections and the electrical caution at the foot
-        assert children.index(part.section) == children.index(app.detector.section) - 1 == len(children) - 4
+        # above the detector and design sections, at the foot
+        assert children.index(part.section) == children.index(app.detector.section) - 1 == len(children) - 3
         assert part.section.titles == (TITLE,) and part.section.selected_index is None
         assert "tiltwell-coils" in part.widget._dom_classes
         app.controls["deceleration"].value = 0.3 * app.state["critical_deceleration"]
@@ -438,12 +438,22 @@ def test_any_coil_setting_draws_or_says_why(app: Explorer, values: dict[str, Any
         assert part.state["peak_current"] <= values["max_current"] * (1 + 1e-12)
 
 
-def test_currents_come_with_the_electrical_caution(app: Explorer) -> None:
+def test_the_electrical_caution_stands_once_where_hardware_is_sized(app: Explorer) -> None:
+    """Once in the whole page (beside the hardware verdicts of the coil section), and the
+    current figure points to it in a caption short enough to show whole."""
+    def texts(widget: ipywidgets.Widget) -> list[str]:
+        found = [html.unescape(widget.value)] if isinstance(widget, ipywidgets.HTML) else []
+        for child in getattr(widget, "children", ()):
+            found += texts(child)
+        return found
+
+    page = texts(app.widget)
+    assert sum(ELECTRICAL_CAUTION in text for text in page) == 1
     part = part_of(app)
-    texts = [child.value for child in part.widget.children[-1].children[0].children if hasattr(child, "value")]
-    assert any(ELECTRICAL_CAUTION in text for text in texts)
+    assert any(ELECTRICAL_CAUTION in text for text in texts(part.widget))
     below = [str(getattr(item, "text", "")) for item in part.figures["currents"].below]
-    assert any("ELECTRICAL_CAUTION" in text for text in below)
+    assert any("see the electrical caution beside the verdicts" in text for text in below)
+    assert all(len(text) <= 90 for text in below)  # about 90 characters fit under a 440 px figure at 8 pt
 
 
 def verdicts_of(scenario: tw.Scenario) -> dict[str, Any]:
@@ -525,3 +535,15 @@ def test_an_extreme_slider_gives_a_hardware_message_not_an_exception(app: Explor
                 gradient=part.controls["gradient"].max)  # the other ends: judged (failing), never raising
     part.wait(timeout=120)
     assert part.verdicts and "FAIL" in part.hardware.value and app.errors == []
+
+
+def test_a_zero_offset_below_the_resolution_reads_zero() -> None:
+    """Positions near 0.01 m: float64 spacing 1.7e-18 m there (numpy.spacing), so 16 of them
+    are 2.8e-17 m; 1.87e-16 m at positions up to 3 m (resolution 1.1e-15 m) is rounding."""
+    from tiltwell.explorer.coils import offset_text
+
+    positions = np.array([0.01, 3.0])
+    resolution = 16 * np.spacing(1.0) * 3.0
+    assert offset_text(1.87e-16, positions).startswith("0 (below the")
+    assert offset_text(1.87e-16, positions).endswith(f"{resolution * 1e12:.2g} pm resolution)")
+    assert offset_text(2.5e-9, positions) == "0.0025 µm"

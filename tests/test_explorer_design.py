@@ -42,9 +42,9 @@ def results(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, se.SearchRe
     return folder, result
 
 
-def test_the_part_is_a_closed_section_above_the_caution(app: Explorer) -> None:
+def test_the_part_is_a_closed_section_at_the_foot(app: Explorer) -> None:
     children = list(app.widget.children)
-    assert children.index(app.design.section) == len(children) - 2
+    assert children.index(app.design.section) == len(children) - 1
     assert app.design.section.titles == (TITLE,) and app.design.section.selected_index is None
     assert app.design.actions["use"].disabled and app.design.choice.disabled
 

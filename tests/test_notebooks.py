@@ -37,3 +37,23 @@ def test_notebook_runs(path: Path, tmp_path: Path) -> None:
     client.execute()
     errors = [o for c in book.cells if c.cell_type == "code" for o in c.outputs if o.output_type == "error"]
     assert not errors
+
+
+@pytest.mark.slow
+def test_running_the_quickstart_where_it_lives_writes_nothing_there(tmp_path: Path) -> None:
+    """Notebook 01 run in notebooks/ itself (as JupyterLab runs it), then its explorer's
+    save button pressed with the default path: the file goes to TILTWELL_OUTPUT, and the
+    notebooks folder holds exactly what it held (its listing compared before and after)."""
+    folder = NOTEBOOKS[0].parent
+    before = sorted(p.name for p in folder.iterdir())
+    book = nbformat.read(NOTEBOOKS[0], as_version=4)
+    book.cells.insert(0, nbformat.v4.new_code_cell(f"import os; os.environ['TILTWELL_OUTPUT'] = {str(tmp_path)!r}"))
+    book.cells.append(nbformat.v4.new_code_cell("saved = app.save_scenario(app.actions['scenario_path'].value)\n"
+                                                "print(saved)"))
+    client = nbclient.NotebookClient(book, timeout=600, kernel_name="python3",
+                                     resources={"metadata": {"path": str(folder)}})
+    client.execute()
+    assert sorted(p.name for p in folder.iterdir() if p.name != ".ipynb_checkpoints") == [
+        name for name in before if name != ".ipynb_checkpoints"]
+    assert (tmp_path / "scenario.toml").is_file()
+    assert str(tmp_path / "scenario.toml") in book.cells[-1].outputs[0]["text"]

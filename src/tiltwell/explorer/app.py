@@ -48,7 +48,7 @@ from .plumbing import Callbacks, bokeh_views, display_with_bokehjs, reserialise,
 from .tasks import Tasks
 from .tradeoff import TradeoffCurve
 from .widgets import (check_values, control_values, fit_deceleration, make_actions, make_controls, make_layout,
-                      make_readouts, read_settings, sync_log)
+                      make_readouts, output_paths, read_settings, sync_log)
 from .._base.files import atomic_write_text, make_folder
 from .._base.validation import TiltwellError
 from ..dynamics.capture import CaptureEstimates
@@ -136,7 +136,7 @@ class Explorer:
         top_velocity = ref.velocity * math.sqrt(5000.0 / ref.temperature)  # a scenario's hottest nozzle, 5000 K
         self.controls = make_controls(settings, self._kind, ref.critical, ref.velocity, top_velocity,
                                       base.species.mass is not None)
-        self.actions = make_actions("tiltwell-scenario.toml", "tiltwell-figures")
+        self.actions = make_actions(*output_paths())
         self.readouts = make_readouts()
         self.figures, self.sources, self.spans = views.make_views()
         self.views = bokeh_views(self.figures)
@@ -148,8 +148,8 @@ class Explorer:
         self.coil_array = CoilPart(default_coils(self._model), self._lock, self._unexpected)
         self.detector = DetectorPart(self._lock, self._unexpected)
         self.design = DesignPart(self._use_design, self._unexpected)
-        self.widget.children = (*self.widget.children[:-1], self.coil_array.section, self.detector.section,
-                                self.design.section, self.widget.children[-1])
+        self.widget.children = (*self.widget.children, self.coil_array.section, self.detector.section,
+                                self.design.section)
         for name, control in self.controls.items():
             if name == "log_scale":
                 on.observe(control, self._on_log_scale, even_when_quiet=True)
@@ -391,6 +391,7 @@ class Explorer:
         """Write :meth:`scenario` to ``path`` (TOML, atomically, :func:`tiltwell.workflows.scenario.save`)."""
         if not str(path).strip():  # Path("") would be the current folder
             raise TiltwellError(f"scenario file must be named; got {str(path)!r}")
+        make_folder(Path(path).parent, "scenario folder")
         return save(self.scenario(), path)
 
     def save_figures(self, out: str | os.PathLike[str]) -> Future[list[Path] | None]:

@@ -25,6 +25,7 @@ from typing import Any
 
 import ipywidgets as widgets
 import numpy as np
+from numpy.typing import NDArray
 
 from . import coilviews as views
 from .coilmodel import (
@@ -62,7 +63,7 @@ from ..coils.moving import PhaseScan
 from ..coils.schedule import Schedule
 from ..physics.limits import Verdict
 
-__all__ = ["HARDWARE_DELAY", "READOUTS", "SCAN_DELAY", "TITLE", "CoilPart"]
+__all__ = ["HARDWARE_DELAY", "READOUTS", "SCAN_DELAY", "TITLE", "CoilPart", "offset_text"]
 
 #: Seconds of quiet after a change before the phase scan is recomputed.
 SCAN_DELAY = 0.5
@@ -70,6 +71,16 @@ SCAN_DELAY = 0.5
 HARDWARE_DELAY = 0.3
 _SCANNED = ("ripple", "worst", "mean", "zero_offset")
 _TITLES = {"depth": "well depth between two coils", "acceptance": "acceptances between two coils"}
+
+
+def offset_text(offset: float, positions: NDArray[np.float64]) -> str:
+    """The largest field-zero offset [m] for the readout, in µm to three digits, or "0" below
+    the resolution of the positions it is computed from (16 float64 spacings of the largest
+    |z|: the root finder stops there, so a smaller offset is rounding, not a number)."""
+    resolution = 16.0 * np.finfo(np.float64).eps * max(float(np.max(np.abs(positions))), 1e-3)
+    if not offset > resolution:
+        return f"0 (below the {resolution * 1e12:.2g} pm resolution)"
+    return f"{offset * 1e6:.3g} µm"
 
 
 class CoilPart:
@@ -333,7 +344,7 @@ class CoilPart:
             f"at {s['worst_phase']:.3g} pitch")
         self.readouts["mean"].value = html.escape(
             f"{s['mean_longitudinal'] * 1e3:.4g} / {s['mean_transverse'] * 1e3:.4g} mm·m/s")
-        self.readouts["zero_offset"].value = html.escape(f"{offset * 1e6:.3g} µm")
+        self.readouts["zero_offset"].value = html.escape(offset_text(offset, result.positions))
         for name, title in _TITLES.items():
             self.figures[name].title.text = title
         self._scanned = key

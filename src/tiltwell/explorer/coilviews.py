@@ -18,6 +18,7 @@ from bokeh.plotting import figure
 from numpy.typing import NDArray
 
 from . import style
+from .views import legend_below
 from ..coils.array import CurrentPlan
 from ..physics.constants import millikelvin
 from ..coils.moving import PhaseScan
@@ -43,7 +44,7 @@ COLUMNS: dict[str, tuple[str, ...]] = {
 #: The phase figures.
 PHASE_FIGURES = ("depth", "acceptance")
 #: A caution on the current figure itself (a saved image keeps it).
-FIGURE_CAUTION = "planning numbers, not a design: see the electrical caution (tiltwell.physics.hardware.ELECTRICAL_CAUTION)"
+FIGURE_CAUTION = "planning numbers, not a design: see the electrical caution beside the verdicts"
 
 _ALONG, _ACROSS, _LIMIT, _REFERENCE = style.WELL, style.KEPT, style.WARNING, style.REFERENCE
 US, MM, UM, AREA = 1e6, 1e3, 1e6, 1e3  # s -> µs, m -> mm, m -> µm, m·m/s -> mm·m/s
@@ -137,8 +138,7 @@ def _depth_figure(sources: dict[str, ColumnDataSource]) -> Any:
            line_width=2, legend_label="main explorer's trap")
     p.add_tools(HoverTool(renderers=[line], tooltips=[("phase", "@phase{0.000} pitch"), ("depth", "@depth{0.0} mK"),
                                                       ("zero offset", "@offset{0.000} µm")]))
-    p.legend.location = "bottom_left"
-    p.legend.click_policy = "hide"
+    legend_below(p)
     return p
 
 
@@ -157,6 +157,5 @@ def _acceptance_figure(sources: dict[str, ColumnDataSource]) -> Any:
     p.add_tools(HoverTool(renderers=drawn, tooltips=[("phase", "@phase{0.000} pitch"),
                                                      ("longitudinal", "@longitudinal{0.00} mm·m/s"),
                                                      ("transverse", "@transverse{0.00} mm·m/s")]))
-    p.legend.location = "bottom_left"
-    p.legend.click_policy = "hide"
+    legend_below(p)
     return p

@@ -98,8 +98,10 @@ def settings_of(controls: Mapping[str, widgets.Widget], winding: CoilSettings | 
 def make_actions() -> dict[str, widgets.Button]:
     """The buttons ``scan`` and ``reset``."""
     return {
-        "scan": widgets.Button(description="scan the phases now", tooltip="depth and acceptances at each phase"),
-        "reset": widgets.Button(description="reset the coils", tooltip="back to the starting coil settings"),
+        "scan": widgets.Button(description="scan the phases now", tooltip="depth and acceptances at each phase",
+                               layout=widgets.Layout(width="auto")),  # wide enough for its label, never cut
+        "reset": widgets.Button(description="reset the coils", tooltip="back to the starting coil settings",
+                                layout=widgets.Layout(width="auto")),
     }
 
 
@@ -113,8 +115,8 @@ def make_layout(controls: Mapping[str, widgets.Widget], actions: Mapping[str, wi
                 message: widgets.HTML, status: widgets.HTML, hardware: widgets.HTML | None = None,
                 hardware_status: widgets.HTML | None = None) -> widgets.VBox:
     """The part: sliders and buttons beside the readouts, the messages, the hardware
-    verdicts beside the electrical caution, then the current view (with the caution under
-    it too) and the two phase views."""
+    verdicts beside the electrical caution, then the current view and the two phase views;
+    without the verdicts the caution stands under the current view instead (once either way)."""
     title = widgets.HTML("<b>coil array</b> — the trap made by a row of thin coils; species, deceleration and "
                          "trap box are those set above")
     left = widgets.VBox([*controls.values(), widgets.HBox(list(actions.values()))],
@@ -124,7 +126,8 @@ def make_layout(controls: Mapping[str, widgets.Widget], actions: Mapping[str, wi
                            layout=widgets.Layout(width=style.CONTROL_WIDTH))
     for name, view in views.items():
         view.add_class(f"tiltwell-coils-view-{name}")
-    plots = widgets.GridBox([widgets.VBox([views["currents"], caution]), views["depth"], views["acceptance"]],
+    under = [views["currents"]] if hardware is not None else [views["currents"], caution]
+    plots = widgets.GridBox([widgets.VBox(under), views["depth"], views["acceptance"]],
                             layout=widgets.Layout(grid_template_columns=style.VIEW_COLUMNS))
     parts: list[widgets.Widget] = [title, widgets.HBox([left, table]), message, status]
     if hardware is not None:

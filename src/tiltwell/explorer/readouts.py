@@ -115,6 +115,11 @@ def texts(state: dict[str, float]) -> dict[str, str]:
 def page_header(species: str, shown: dict[str, str]) -> str:
     """The head of a saved page (HTML): the species, the critical deceleration and the
     table of readouts, ``shown`` being the readout texts as displayed (HTML), keyed as in
-    :data:`tiltwell.explorer.widgets.READOUTS` plus ``critical``."""
-    rows = "".join(f"<tr><td>{html.escape(label)}</td><td>{shown[key]}</td></tr>" for key, label in READOUTS)
-    return f"<b>tiltwell explorer</b>: {html.escape(species)}, {shown['critical']}<table>{rows}</table>"
+    :data:`tiltwell.explorer.widgets.READOUTS` plus ``critical``. A readout not computed
+    (shown as "— (... button)" in the explorer, where the button is) is left out: the page
+    has no buttons, and says how many rows it leaves out."""
+    kept = [(label, shown[key]) for key, label in READOUTS if not shown[key].startswith("—")]
+    rows = "".join(f"<tr><td>{html.escape(label)}</td><td>{value}</td></tr>" for label, value in kept)
+    left = len(READOUTS) - len(kept)
+    note = f"<p><small>{left} readouts not computed before saving are left out.</small></p>" if left else ""
+    return f"<b>tiltwell explorer</b>: {html.escape(species)}, {shown['critical']}<table>{rows}</table>{note}"

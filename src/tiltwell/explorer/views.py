@@ -31,6 +31,7 @@ from .model import Picture
 from ..physics.constants import millikelvin
 
 __all__ = [
+    "legend_below",
     "KEPT_COLOUR",
     "LOST_COLOUR",
     "SIGMAS",
@@ -184,6 +185,19 @@ def make_views() -> tuple[dict[str, Any], dict[str, ColumnDataSource], dict[str,
     return figures, sources, {"critical": critical}
 
 
+def legend_below(p: Any) -> None:
+    """Move the figure's legend under the plot, in one row, so that it never covers the data
+    (a click on an entry still hides its curve)."""
+    legend = p.legend[0]
+    p.center.remove(legend)
+    legend.location, legend.orientation, legend.click_policy = "center", "horizontal", "hide"
+    legend.margin, legend.padding, legend.spacing = 2, 2, 6
+    legend.label_text_font_size, legend.glyph_width = "8pt", 16
+    if len(legend.items) > 3:  # two rows, so that no entry is cut at the figure's width
+        legend.nrows = 2
+    p.add_layout(legend, "below")
+
+
 def _potential_figure(sources: dict[str, ColumnDataSource]) -> Any:
     p = figure(**style.FIGURE, title="potential on the beam axis",
                x_axis_label="z [mm]", y_axis_label="U / k_B [mK]")
@@ -203,8 +217,7 @@ def _potential_figure(sources: dict[str, ColumnDataSource]) -> Any:
         HoverTool(renderers=[barriers], tooltips=[("", "@name"), ("z", "@z{0.000} mm"), ("energy", "@energy{0.000} mK"),
                                                   ("above the bottom", "@height{0.000} mK")]),
     )
-    p.legend.location = "top_left"
-    p.legend.click_policy = "hide"
+    legend_below(p)
     return p
 
 
@@ -228,8 +241,7 @@ def _phase_figure(sources: dict[str, ColumnDataSource], plane: str, x_label: str
                                               (velocity, "@v{0.00} m/s")]),
         HoverTool(renderers=[rings], tooltips=[("beam ellipse", "@sigma")]),
     )
-    p.legend.location = "top_left"
-    p.legend.click_policy = "hide"
+    legend_below(p)
     return p
 
 
@@ -252,8 +264,7 @@ def _tradeoff_figure(sources: dict[str, ColumnDataSource], critical: Span) -> An
     p.add_layout(critical)
     tips = [("deceleration", "@deceleration{0.000a} m/s²"), ("captured", "@overlap{0.0000}"), ("length", "@length{0.000} m")]
     p.add_tools(HoverTool(renderers=[kept, here, length, here_length], tooltips=tips))
-    p.legend.location = "top_right"
-    p.legend.click_policy = "hide"
+    legend_below(p)
     return p
 
 

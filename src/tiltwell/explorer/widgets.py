@@ -8,7 +8,9 @@ from __future__ import annotations
 
 import html
 import math
+import os
 from collections.abc import Mapping
+from pathlib import Path
 from typing import Any
 
 import ipywidgets as widgets
@@ -16,7 +18,6 @@ import ipywidgets as widgets
 from . import style
 from .model import Settings
 from .._base.validation import TiltwellError
-from ..physics.hardware import ELECTRICAL_CAUTION
 from ..physics.species import catalogue
 
 __all__ = [
@@ -163,6 +164,15 @@ def make_controls(settings: Settings, kind: str, critical: float, reference_velo
     return controls
 
 
+def output_paths() -> tuple[str, str]:
+    """Where the save buttons write unless told otherwise: ``scenario.toml`` and
+    ``figures/`` in the folder named by the environment variable ``TILTWELL_OUTPUT``, else
+    in ``~/tiltwell-output`` — outside the notebook's folder, so running a tracked notebook
+    leaves its checkout clean (the folder is made when something is saved)."""
+    folder = Path(os.environ.get("TILTWELL_OUTPUT", "").strip() or Path.home() / "tiltwell-output")
+    return str(folder / "scenario.toml"), str(folder / "figures")
+
+
 def make_actions(scenario_path: str, figures_path: str) -> dict[str, widgets.Widget]:
     """Buttons and their path boxes; ``progress`` reports background work."""
     def button(text: str, tip: str) -> widgets.Button:
@@ -208,7 +218,8 @@ def make_layout(controls: dict[str, widgets.Widget], actions: dict[str, widgets.
                 readouts: dict[str, widgets.HTML], views: dict[str, widgets.Widget],
                 message: widgets.HTML, status: widgets.HTML, deceleration_box: widgets.Box) -> widgets.VBox:
     """The page: controls beside the readouts, the messages under them, the four views
-    in a 2 x 2 grid, the buttons, and the electrical caution at the foot."""
+    in a 2 x 2 grid and the buttons. (The electrical caution stands once, in the coil-array
+    section, beside the hardware it sizes.)"""
     title = widgets.HTML("<b>tiltwell explorer</b> — acceptance of a decelerating moving magnetic trap")
     order = ["species", "gradient", "max_field", "current"]
     physics = [controls[name] for name in order if name in controls]
@@ -229,8 +240,7 @@ def make_layout(controls: dict[str, widgets.Widget], actions: dict[str, widgets.
         if name in ("longitudinal", "transverse"):
             view.add_class("tiltwell-view-phase")
     plots = widgets.GridBox(list(views.values()), layout=widgets.Layout(grid_template_columns=style.VIEW_COLUMNS))
-    caution = widgets.HTML(f"<small>{html.escape(ELECTRICAL_CAUTION)}</small>", layout=widgets.Layout(width="920px"))
-    return widgets.VBox([title, widgets.HBox([left, table]), message, status, plots, buttons, caution])
+    return widgets.VBox([title, widgets.HBox([left, table]), message, status, plots, buttons])
 
 
 def check_values(controls: Mapping[str, widgets.Widget], values: Mapping[str, Any]) -> None:
