@@ -545,3 +545,21 @@ def test_the_save_buttons_default_to_a_folder_outside_the_checkout(monkeypatch: 
     monkeypatch.delenv("TILTWELL_OUTPUT")
     monkeypatch.setenv("HOME", str(tmp_path))
     assert output_paths()[0] == str(tmp_path / "tiltwell-output" / "scenario.toml")
+
+
+def test_one_tick_rule_for_every_axis(app: Explorer) -> None:
+    """Every linear axis of every explorer figure (main views, coil part, detector, design)
+    formats its ticks by the same rule, so 2e4 m/s^2 reads the same in any figure and for any
+    species; Bokeh's BasicTickFormatter with those settings is the reference."""
+    from bokeh.models import BasicTickFormatter, LinearAxis
+
+    from tiltwell.explorer.plumbing import TICK_RULE
+
+    figures = [*app.figures.values(), *app.coil_array.figures.values(), app.detector.figure, app.design.figure]
+    axes = [axis for p in figures for axis in (*p.left, *p.right, *p.below, *p.above) if isinstance(axis, LinearAxis)]
+    assert len(axes) >= 2 * len(figures)
+    for axis in axes:
+        assert isinstance(axis.formatter, BasicTickFormatter)
+        assert {key: getattr(axis.formatter, key) for key in TICK_RULE} == TICK_RULE
+    app.controls["species"].value = "Rb-87"
+    assert all(isinstance(axis.formatter, BasicTickFormatter) for p in app.figures.values() for axis in p.left)

@@ -20,6 +20,7 @@ from concurrent.futures import Future
 from typing import Any, TypeVar
 
 import ipywidgets as widgets
+from bokeh.models import BasicTickFormatter, LinearAxis
 from jupyter_bokeh import BokehModel
 
 from .tasks import Tasks
@@ -87,8 +88,18 @@ class Callbacks:
         button.on_click(lambda _: self.guard(action))
 
 
+#: The one tick rule of every explorer axis: plain numbers from 1e-3 up to 1e4, powers of
+#: ten beyond (so the same value reads the same whatever the species or the figure).
+TICK_RULE: dict[str, Any] = {"use_scientific": True, "power_limit_high": 4, "power_limit_low": -3}
+
+
 def bokeh_views(figures: Mapping[str, Any]) -> dict[str, BokehModel]:
-    """One jupyter_bokeh view (an ipywidget) per figure, keyed alike."""
+    """One jupyter_bokeh view (an ipywidget) per figure, keyed alike; every linear axis of
+    every figure gets the :data:`TICK_RULE` formatter first."""
+    for figure in figures.values():
+        for axis in (*figure.left, *figure.right, *figure.below, *figure.above):
+            if isinstance(axis, LinearAxis):
+                axis.formatter = BasicTickFormatter(**TICK_RULE)
     return {name: BokehModel(figure) for name, figure in figures.items()}
 
 

@@ -14,7 +14,6 @@ from typing import Any
 import numpy as np
 from bokeh.embed import file_html
 from bokeh.models import (
-    BasicTickFormatter,
     ColumnDataSource,
     DataRange1d,
     HoverTool,
@@ -259,7 +258,6 @@ def _tradeoff_figure(sources: dict[str, ColumnDataSource], critical: Span) -> An
     # each axis ranges over its own curves only, from zero
     p.y_range = DataRange1d(renderers=[kept, here], start=0.0)
     p.extra_y_ranges = {"length": DataRange1d(renderers=[length, here_length], start=0.0)}
-    p.xaxis.formatter = BasicTickFormatter(precision=1)
     p.add_layout(LinearAxis(y_range_name="length", axis_label="device length [m]"), "right")
     p.add_layout(critical)
     tips = [("deceleration", "@deceleration{0.000a} m/s²"), ("captured", "@overlap{0.0000}"), ("length", "@length{0.000} m")]
