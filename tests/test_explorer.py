@@ -563,3 +563,18 @@ def test_one_tick_rule_for_every_axis(app: Explorer) -> None:
         assert {key: getattr(axis.formatter, key) for key in TICK_RULE} == TICK_RULE
     app.controls["species"].value = "Rb-87"
     assert all(isinstance(axis.formatter, BasicTickFormatter) for p in app.figures.values() for axis in p.left)
+
+
+def test_axis_labels_carry_no_raw_underscores() -> None:
+    """A label with a subscript is math text between $$ (Bokeh hands it to MathJax, inlined
+    with BokehJS); no other label shows an underscore."""
+    from bokeh.models import LinearAxis
+
+    from tiltwell.explorer import coilviews, views
+
+    drawn = {**views.make_views()[0], **coilviews.make_views()[0]}
+    labels = [str(axis.axis_label) for p in drawn.values() for axis in (*p.left, *p.right, *p.below)
+              if isinstance(axis, LinearAxis) and axis.axis_label]
+    assert r"$$U / k_\mathrm{B}\ \mathrm{[mK]}$$" in labels and r"$$v_z - v_\mathrm{trap}\ \mathrm{[m/s]}$$" in labels
+    for label in labels:
+        assert "_" not in label or (label.startswith("$$") and label.endswith("$$")), label

@@ -127,8 +127,8 @@ def _currents_figure(sources: dict[str, ColumnDataSource], spans: dict[str, Span
 
 
 def _depth_figure(sources: dict[str, ColumnDataSource]) -> Any:
-    p = figure(**style.FIGURE, title="well depth between two coils",
-               x_axis_label="trap phase [pitch]", y_axis_label="depth / k_B [mK]")
+    p = figure(**style.FIGURE, title="well depth between two coils", x_axis_label="trap phase [pitch]",
+               y_axis_label=r"$$\mathrm{depth} / k_\mathrm{B}\ \mathrm{[mK]}$$")
     line = p.line("phase", "depth", source=sources["depth"], line_color=_ALONG, line_width=2,
                   legend_label="coil array")
     p.scatter("phase", "depth", source=sources["depth"], color=_ALONG, size=5)

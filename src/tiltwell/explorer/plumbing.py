@@ -88,9 +88,10 @@ class Callbacks:
         button.on_click(lambda _: self.guard(action))
 
 
-#: The one tick rule of every explorer axis: plain numbers from 1e-3 up to 1e4, powers of
-#: ten beyond (so the same value reads the same whatever the species or the figure).
-TICK_RULE: dict[str, Any] = {"use_scientific": True, "power_limit_high": 4, "power_limit_low": -3}
+#: The one tick rule of every explorer axis: plain numbers from 1e-3 up to 1e6 (decelerations
+#: read 20000, not 2.0e+4), powers of ten beyond, so the same value reads the same whatever
+#: the species or the figure.
+TICK_RULE: dict[str, Any] = {"use_scientific": True, "power_limit_high": 6, "power_limit_low": -3}
 
 
 def bokeh_views(figures: Mapping[str, Any]) -> dict[str, BokehModel]:

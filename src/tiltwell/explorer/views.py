@@ -177,8 +177,9 @@ def make_views() -> tuple[dict[str, Any], dict[str, ColumnDataSource], dict[str,
     critical = Span(location=0.0, dimension="height", line_color=LOST_COLOUR, line_dash="dotted", line_width=1.5)
     figures = {
         "potential": _potential_figure(sources),
-        "longitudinal": _phase_figure(sources, "longitudinal", "z − z_trap [mm]", "v_z − v_trap [m/s]"),
-        "transverse": _phase_figure(sources, "transverse", "x [mm]", "v_x [m/s]"),
+        "longitudinal": _phase_figure(sources, "longitudinal", (r"$$z - z_\mathrm{trap}\ \mathrm{[mm]}$$", "Δz"),
+                                      (r"$$v_z - v_\mathrm{trap}\ \mathrm{[m/s]}$$", "Δv")),
+        "transverse": _phase_figure(sources, "transverse", ("x [mm]", "x"), (r"$$v_x\ \mathrm{[m/s]}$$", "vx")),
         "tradeoff": _tradeoff_figure(sources, critical),
     }
     return figures, sources, {"critical": critical}
@@ -199,7 +200,7 @@ def legend_below(p: Any) -> None:
 
 def _potential_figure(sources: dict[str, ColumnDataSource]) -> Any:
     p = figure(**style.FIGURE, title="potential on the beam axis",
-               x_axis_label="z [mm]", y_axis_label="U / k_B [mK]")
+               x_axis_label="z [mm]", y_axis_label=r"$$U / k_\mathrm{B}\ \mathrm{[mK]}$$")
     rest = p.line("z", "lab", source=sources["potential"], line_color=style.REFERENCE, line_dash="dashed",
                   line_width=2, legend_label="trap at rest (a = 0)")
     moving = p.line("z", "moving", source=sources["potential"], line_color=style.WELL, line_width=2,
@@ -220,7 +221,10 @@ def _potential_figure(sources: dict[str, ColumnDataSource]) -> Any:
     return p
 
 
-def _phase_figure(sources: dict[str, ColumnDataSource], plane: str, x_label: str, y_label: str) -> Any:
+def _phase_figure(sources: dict[str, ColumnDataSource], plane: str, x: tuple[str, str], y: tuple[str, str]) -> Any:
+    """``x`` and ``y``: (axis label, math text between ``$$`` where it has subscripts; the
+    plain words the hover shows)."""
+    (x_label, coordinate), (y_label, velocity) = x, y
     p = figure(**style.FIGURE, title=f"{plane} phase plane",
                x_axis_label=x_label, y_axis_label=y_label)
     kept = p.scatter("q", "v", source=sources[f"{plane}_kept"], color=KEPT_COLOUR, size=3, alpha=0.5,
@@ -231,8 +235,6 @@ def _phase_figure(sources: dict[str, ColumnDataSource], plane: str, x_label: str
                          legend_label="beam 1σ, 2σ")
     edge = p.line("q", "v", source=sources[f"{plane}_separatrix"], line_color=style.WELL, line_width=2.5,
                   legend_label="separatrix")
-    coordinate = x_label.split(" ")[0]
-    velocity = y_label.split(" ")[0]
     p.add_tools(
         HoverTool(renderers=[kept], tooltips=[(coordinate, "@q{0.000} mm"), (velocity, "@v{0.00} m/s"), ("", "kept")]),
         HoverTool(renderers=[lost], tooltips=[(coordinate, "@q{0.000} mm"), (velocity, "@v{0.00} m/s"), ("", "lost")]),
