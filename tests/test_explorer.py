@@ -204,7 +204,12 @@ def test_species_change_equals_the_library(app: Explorer, name: str) -> None:
     assert app.state["longitudinal_acceptance"] == result.longitudinal.area
     assert app.state["captured_fraction_overlap"] == tw.plane_product_fraction(
         result.longitudinal, result.transverse, beam, mismatch)
-    assert app.controls["deceleration"].max >= 2.0 * app.state["critical_deceleration"]
+    # the slider runs a little past the critical deceleration (or to the current value, never
+    # clipped), and the readout says so
+    slider, critical = app.controls["deceleration"], app.state["critical_deceleration"]
+    assert slider.max >= 1.25 * critical
+    assert slider.max < 1.3 * critical or slider.max == pytest.approx(slider.value, rel=1e-3)
+    assert "no well beyond it (the slider's last 20 %)" in app.readouts["critical"].value
 
 
 @pytest.mark.parametrize(("control", "value"), [("gradient", 400.0), ("max_field", 1.5), ("mismatch", 6.0)])
@@ -339,7 +344,7 @@ control_values = st.fixed_dictionaries({
 
 @pytest.mark.slow
 @settings(max_examples=40, deadline=None, database=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(values=control_values, fraction=st.floats(0.0, 2.0))
+@given(values=control_values, fraction=st.floats(0.0, 1.25))
 def test_any_setting_gives_a_picture_never_an_exception(app: Explorer, values: dict[str, object],
                                                         fraction: float) -> None:
     app.update(**values)

@@ -402,9 +402,9 @@ def test_a_short_device_or_no_schedule_blanks_the_currents_with_a_message(app: E
 
 
 def test_above_the_critical_deceleration_the_scan_says_there_is_no_well(app: Explorer) -> None:
-    app.update(deceleration=1.5 * app.state["critical_deceleration"])
+    app.update(deceleration=1.2 * app.state["critical_deceleration"])
     part = part_of(app)
-    part.update(radius=19.0, gradient=125.0)  # 1.5 x the rigid trap's critical 9.9e4 m/s^2 also tilts these wells away
+    part.update(radius=19.0, gradient=50.0)  # a weaker row: 1.2 x the main trap's critical tilts its wells away
     result = part.scan().result(timeout=120)
     assert result is not None and not np.any(result.bound)
     assert part.readouts["ripple"].value == "— (no well at 12 of 12 phases)"

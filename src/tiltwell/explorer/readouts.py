@@ -10,7 +10,7 @@ import math
 from . import style
 from .model import Picture
 from .views import barrier_picks, sci
-from .widgets import READOUTS
+from .widgets import DECELERATION_SPAN, READOUTS
 from ..physics.constants import millikelvin
 
 __all__ = ["HEAVY", "page_header", "problems", "state_of", "texts", "warning"]
@@ -93,7 +93,8 @@ def texts(state: dict[str, float]) -> dict[str, str]:
 
     critical = state.get("critical_deceleration", math.nan)
     return {
-        "critical": f"critical deceleration {sci(critical)} m/s²" if math.isfinite(critical) else "—",
+        "critical": (f"critical deceleration {sci(critical)} m/s²: no well beyond it (the slider's last "
+                     f"{100 * (1 - 1 / DECELERATION_SPAN):.0f} %)" if math.isfinite(critical) else "—"),
         "longitudinal": value("longitudinal_acceptance", 1e3, "mm·m/s"),
         "transverse": value("transverse_acceptance", 1e3, "mm·m/s"),
         "acceptance_6d": value("acceptance_6d", 1e9, "(mm·m/s)³", missing="— (6-D button)"),

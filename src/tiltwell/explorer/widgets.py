@@ -21,6 +21,7 @@ from .._base.validation import TiltwellError
 from ..physics.species import catalogue
 
 __all__ = [
+    "DECELERATION_SPAN",
     "READOUTS",
     "CONTROL_LAYOUT",
     "LABEL_STYLE",
@@ -101,10 +102,15 @@ def slider(value: float, low: float, high: float, step: float, description: str,
                                continuous_update=True)
 
 
+#: Top of the deceleration slider in units of the critical deceleration: a little past it,
+#: so most of the slider is where a well exists (the readout under it names the rest).
+DECELERATION_SPAN = 1.25
+
+
 def deceleration_range(critical: float, deceleration: float) -> float:
-    """Top of the deceleration slider [m/s^2]: twice the critical deceleration, or the
-    current value when that is higher (never clips a value)."""
-    top = max(2.0 * critical, deceleration)
+    """Top of the deceleration slider [m/s^2]: :data:`DECELERATION_SPAN` times the critical
+    deceleration, or the current value when that is higher (never clips a value)."""
+    top = max(DECELERATION_SPAN * critical, deceleration)
     return top if top > 0.0 else 1.0
 
 
@@ -270,8 +276,9 @@ def sync_log(controls: Mapping[str, widgets.Widget]) -> None:
 
 
 def fit_deceleration(controls: Mapping[str, widgets.Widget], critical: float) -> None:
-    """Set both deceleration sliders' range to 0 ... 2 x ``critical`` [m/s^2], or up to
-    the current value when that is higher: a range change never moves the value."""
+    """Set both deceleration sliders' range to 0 ... :data:`DECELERATION_SPAN` x
+    ``critical`` [m/s^2], or up to the current value when that is higher: a range change
+    never moves the value."""
     linear, log = controls["deceleration"], controls["deceleration_log"]
     top = deceleration_range(critical, linear.value)
     if math.isclose(top, linear.max, rel_tol=1e-3):
