@@ -230,3 +230,18 @@ def test_a_varied_key_may_be_given_as_text() -> None:
 
     points = design_points("trap.gradient=80,100")
     assert points == [{"trap.gradient": 80.0}, {"trap.gradient": 100.0}]
+
+
+def test_an_error_names_its_argument_and_keeps_it_through_pickle() -> None:
+    """The refused argument travels with the error (as a process pool or Dask sends it back),
+    so a scenario's own key can be named without reading the message."""
+    import pickle
+
+    with pytest.raises(TiltwellError) as caught:
+        tw.majorana_rate(OH.mass, OH.moment, -1.0, 1e-3)
+    assert caught.value.argument == "gradient"
+    again = pickle.loads(pickle.dumps(caught.value))
+    assert again.argument == "gradient" and str(again) == str(caught.value)
+    from tiltwell._base.files import WriteError
+
+    assert isinstance(WriteError("cannot write 'x': full"), OSError)

@@ -44,11 +44,13 @@ def available_memory() -> int:
         return int(4 * _GIB)
 
 
-def check_memory(needed: float, what: str, fix: str) -> None:
+def check_memory(needed: float, what: str, fix: str, argument: str | None = None) -> None:
     """Raise a TiltwellError when ``needed`` bytes exceed :data:`MEMORY_SHARE` of the free
-    memory: ``what`` names the request, ``fix`` says what to ask for instead."""
+    memory: ``what`` names the request, ``fix`` says what to ask for instead, ``argument``
+    the argument that asked for it (the error's ``argument``)."""
     free = available_memory()
     limit = MEMORY_SHARE * free
     if needed > limit:
         raise TiltwellError(f"{what} needs about {needed / _GIB:.3g} GiB of memory; this machine has "
-                            f"{free / _GIB:.3g} GiB free and a request may take {limit / _GIB:.3g} GiB: {fix}")
+                            f"{free / _GIB:.3g} GiB free and a request may take {limit / _GIB:.3g} GiB: {fix}",
+                            argument=argument)

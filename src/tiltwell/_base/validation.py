@@ -42,7 +42,15 @@ __all__ = [
 
 
 class TiltwellError(ValueError):
-    """Bad input to a tiltwell function. A ``ValueError``, so callers may catch either."""
+    """Bad input to a tiltwell function. A ``ValueError``, so callers may catch either.
+
+    ``argument`` names the argument refused where a validator knows it (None otherwise), so
+    a caller that passed it on from a file can name the file's key instead, without reading
+    the message."""
+
+    def __init__(self, *args: object, argument: str | None = None) -> None:
+        super().__init__(*args)
+        self.argument = argument
 
 
 #: Ceilings of this tool's inputs where physics sets none (not physical limits: far beyond any
@@ -145,14 +153,14 @@ def as_scalar(
     """
     label = _label(name, unit)
     if _not_a_number(value) or isinstance(value, (str, bytes)) or (strict and not isinstance(value, numbers.Real)):
-        raise TiltwellError(f"{label} must be a real number; got {_describe(value)}")
+        raise TiltwellError(f"{label} must be a real number; got {_describe(value)}", argument=name)
     try:
         number = float(value)
     except (TypeError, ValueError):
-        raise TiltwellError(f"{label} must be a real number; got {_describe(value)}") from None
+        raise TiltwellError(f"{label} must be a real number; got {_describe(value)}", argument=name) from None
     allowed = Interval(low, high, low_open, high_open)
     if number not in allowed:
-        raise TiltwellError(f"{label} must be finite and in {allowed}; got {number!r}")
+        raise TiltwellError(f"{label} must be finite and in {allowed}; got {number!r}", argument=name)
     return number
 
 
@@ -218,7 +226,7 @@ def as_integer(value: Any, name: str, low: int, high: int | None = None, *, even
     if isinstance(value, bool) or not isinstance(value, numbers.Integral) or not (
         low <= int(value) and (high is None or int(value) <= high) and not (even and int(value) % 2)
     ):
-        raise TiltwellError(f"{name} must be {kind} {allowed}; got {_describe(value)}")
+        raise TiltwellError(f"{name} must be {kind} {allowed}; got {_describe(value)}", argument=name)
     return int(value)
 
 

@@ -121,7 +121,7 @@ def checked_step(time_step: float, acceptance: TrapAcceptance, mass: float) -> f
     if time_step > largest:
         raise TiltwellError(f"time_step [s] must be in (0, {largest:.3g}] here: at most {MAX_STEP_SHARE:g} of the "
                             f"well's crossing time ({largest / MAX_STEP_SHARE:.3g} s), or the integrator, not the "
-                            f"trap, loses particles; got {time_step:g}")
+                            f"trap, loses particles; got {time_step:g}", argument="time_step")
     return time_step
 
 

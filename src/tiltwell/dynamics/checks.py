@@ -85,7 +85,8 @@ def fixed_steps(duration: float, time_step: float) -> tuple[float, int, float]:
     largest = as_scalar(time_step, "time_step", "s", low=0.0, low_open=True, high=total)
     steps = math.ceil(total / largest * (1.0 - _STEP_ROUNDING))
     if steps > MAX_STEPS:
-        raise TiltwellError(f"duration / time_step must be at most {MAX_STEPS:g} steps; got {steps:g}")
+        raise TiltwellError(f"duration / time_step must be at most {MAX_STEPS:g} steps; got {steps:g}",
+                            argument="time_step")
     return total, steps, total / steps
 
 

@@ -201,7 +201,7 @@ class Beam:
         is drawn (:func:`tiltwell._base.resources.check_memory`)."""
         count = as_integer(n, "n", 0)
         check_memory(count * BYTES_PER_PARTICLE, f"{count} particles (sampled and tracked)",
-                     "ask for fewer particles (the statistical error falls only as 1/sqrt(N))")
+                     "ask for fewer particles (the statistical error falls only as 1/sqrt(N))", argument="particles")
         parts = list(self.chunks(count, seed=seed))
         return np.concatenate(parts) if parts else np.empty((0, 6))
 

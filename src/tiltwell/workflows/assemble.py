@@ -71,12 +71,15 @@ def build(scenario: Scenario) -> Built:
     return Built(particle, trap, source, beam, schedule, b.mismatch, model)
 
 
-def _named(key: str, look_up: Callable[[], _T]) -> _T:
-    """``look_up()``, its TiltwellError prefixed with the scenario key that named the thing."""
+def _named(key: str, look_up: Callable[[], _T], argument: str | None = None) -> _T:
+    """``look_up()``, its TiltwellError prefixed with the scenario key that named the thing
+    (only an error about ``argument`` when one is given; others pass unchanged)."""
     try:
         return look_up()
     except TiltwellError as error:
-        raise TiltwellError(f"{key}: {error}") from None
+        if argument is not None and error.argument != argument:
+            raise
+        raise TiltwellError(f"{key}: {error}", argument=error.argument) from None
 
 
 def _species(scenario: Scenario) -> Species:
@@ -102,8 +105,8 @@ def timing(scenario: Scenario, schedule: Schedule) -> CoilTiming | None:
            f"the top speed ({schedule.initial_velocity:.4g} m/s, the beam's mean plus [beam] mismatch) over the "
            "coil's window of the pitch: lower rise_time or check mismatch and pitch")
     if scenario.coils is None:
-        return _named(why, lambda: coil_timing(schedule, pitch, peak_current=peak, rise_time=d.rise_time))
+        return _named(why, lambda: coil_timing(schedule, pitch, peak_current=peak, rise_time=d.rise_time), "rise_time")
     row = row_array(scenario, schedule.length)
     return _named(why, lambda: coil_timing(schedule, row.pitch, first_coil=row.first, count=row.count,
                                            window=0.5 * row.active, peak_current=peak,
-                                           rise_time=d.rise_time))
+                                           rise_time=d.rise_time), "rise_time")

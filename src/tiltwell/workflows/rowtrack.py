@@ -79,11 +79,9 @@ def estimate(scenario: Scenario, built: Built | None = None, *, progress: bool =
             switch_on_time=min(sim.switch_on_time, schedule.duration), progress=progress,
             spin_flips=sim.spin_flips and not through_row,
         )
-    except TiltwellError as error:  # name the scenario's key where the argument is one
-        text = str(error)
-        key = ("time_step" if text.startswith(("time_step [s]", "duration / time_step")) else
-               "particles" if "particles (sampled and tracked) needs" in text else None)
-        if key is None:
+    except TiltwellError as error:  # name the scenario's key where the refused argument is one
+        if error.argument not in ("time_step", "particles"):
             raise
-        raise TiltwellError(f"[simulation] {key}: {text} (the run is {schedule.duration:.4g} s)") from None
+        raise TiltwellError(f"[simulation] {error.argument}: {error} (the run is {schedule.duration:.4g} s)",
+                            argument=error.argument) from None
     return track_through_row(scenario, built, estimates, progress=progress) if through_row else estimates
